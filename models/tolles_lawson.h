@@ -1,0 +1,177 @@
+#pragma once
+// Tolles-Lawson terms (Tolles & Lawson 1950; Leliak 1961). Dependency-free:
+// this one implementation serves fit, apply, stream and the runtime.
+//
+// Interference on the total field, with c = B/|B| the direction cosines of
+// the fluxgate field in the body frame (x forward, y starboard, z down), c'
+// their time derivative (1/s) and Bt the total field (nT):
+//
+//   H = sum_i a_i c_i                       permanent   perm_x..z      [nT]
+//     + Bt sum_{i<=j} b_ij c_i c_j          induced     ind_xx..       [1]
+//     + Bt sum_{i,j} e_ij c_i c'_j          eddy        eddy_xx..      [s]
+//     + sum_k sum_i g_ki c_i a_k(t)         aux channel aux_<col>_x..  [nT/unit]
+//
+// Scaling: induced and eddy columns are multiplied by Bt, so their
+// coefficients are dimensionless (induced) and in seconds (eddy); the
+// coefficient of a column is reported in these physical units. Because
+// sum c_i^2 = 1 one induced term is redundant (ind_zz is dropped) and because
+// sum c_i c'_i = 0 one eddy term is (eddy_zz is dropped): 16 terms by
+// default, 18 with `full`, which is then rank-deficient by two.
+//
+// Column order: perm_x perm_y perm_z, ind_xx ind_xy ind_xz ind_yy ind_yz
+// [ind_zz], eddy_xx eddy_xy eddy_xz eddy_yx eddy_yy eddy_yz eddy_zx eddy_zy
+// [eddy_zz], then aux_<col>_x aux_<col>_y aux_<col>_z for each aux channel.
+
+#include <cstddef>
+#include <cstdint>
+#include <string>
+#include <vector>
+
+namespace fluxtrim::models {
+
+struct TermOptions {
+  bool permanent = true;
+  bool induced = true;
+  bool eddy = true;
+  bool full = false;             // 18 terms: adds ind_zz and eddy_zz
+  std::vector<std::string> aux;  // extra channels, e.g. {"i_motor"}
+};
+
+// Parses a --terms value: "default" (16), "full" (18), or a comma list of
+// groups from {permanent, induced, eddy}, e.g. "permanent,induced".
+// Throws std::invalid_argument naming the bad word.
+TermOptions ParseTermSet(const std::string& spec);
+// Inverse of ParseTermSet for the group part ("default", "full",
+// "permanent,induced", ...).
+std::string TermSetName(const TermOptions& options);
+
+std::vector<std::string> TermNames(const TermOptions& options);
+std::size_t TermCount(const TermOptions& options);
+
+// Fills row[0..TermCount) for one sample.
+//   c    direction cosines (unit vector), body frame
+//   dc   time derivative of c, 1/s (zeros where the derivative is invalid)
+//   bt   total field, nT
+//   aux  one value per options.aux channel (may be null when there is none)
+void FillTermRow(const TermOptions& options, const double c[3],
+                 const double dc[3], double bt, const double* aux,
+                 double* row);
+
+// Per-sample flags, shared by apply, stream and the runtime.
+enum SampleFlag : std::uint32_t {
+  kFlagGapEdge = 1u << 0,             // first sample after, or last before, a gap
+  kFlagDerivativeInvalid = 1u << 1,   // fewer than k samples on a side: c' = 0
+  kFlagAttitudeOutside = 1u << 2,     // attitude outside the range the fit saw
+  kFlagBadSample = 1u << 3,           // non-finite time or fluxgate: no output
+};
+
+// Centred smoothing derivative of half-width k (k >= 1): the slope of the
+// least-squares line through 2k+1 equally spaced samples (Savitzky & Golay
+// 1964, first derivative, linear fit):
+//   x'(t) = sum_{j=-k..k} j x(t + j dt) / (dt sum_{j=-k..k} j^2),
+//   sum j^2 = k (k+1) (2k+1) / 3.
+// Its weight for offset j is j / (dt * that sum).
+double DerivativeWeight(int half_width, int offset, double dt_s);
+
+// Streaming term engine: push samples one at a time, get term rows back with
+// a fixed delay of k samples. The batch builder below runs the same engine,
+// so apply and stream agree sample for sample.
+//
+// Segments: a gap ends a segment when the time step exceeds gap_factor
+// times the nominal 1/sample_rate_hz, when time does not increase, or when a
+// sample has a non-finite time or fluxgate component. A sample at position p
+// of a segment of length L has a valid derivative iff p >= k and p + k < L;
+// otherwise c' = 0 and kFlagDerivativeInvalid is set. The first sample after
+// and the last before a gap carry kFlagGapEdge. A bad sample is emitted at
+// once with kFlagBadSample and NaN interference.
+//
+// No allocation after construction.
+class TermEngine {
+ public:
+  struct Options {
+    TermOptions terms;
+    int half_width = 2;           // k, samples
+    double sample_rate_hz = 10.0;
+    double gap_factor = 1.5;
+  };
+
+  struct Output {
+    std::uint64_t index = 0;  // 0-based sequence number of the pushed sample
+    double time = 0.0;        // s
+    double bt = 0.0;          // total field used, nT (f if finite, else |B|)
+    double f = 0.0;           // scalar reading as pushed (NaN if none)
+    double c[3] = {0, 0, 0};
+    double dc[3] = {0, 0, 0};
+    const double* row = nullptr;  // TermCount values; valid until next call
+    double interference = 0.0;    // row . coefficients, nT (NaN if bad)
+    std::uint32_t flags = 0;
+  };
+
+  explicit TermEngine(const Options& options);
+
+  std::size_t term_count() const { return term_count_; }
+  int half_width() const { return options_.half_width; }
+  const Options& options() const { return options_; }
+  // Largest number of outputs one Push or Flush can return.
+  int max_outputs() const { return options_.half_width + 2; }
+
+  // Coefficients in physical units, term_count() values. Until set, the
+  // interference of every output is 0.
+  void SetCoefficients(const double* coefficients);
+
+  // Pushes one sample. f is the scalar sensor reading or NaN; aux holds one
+  // value per aux channel (may be null when there is none). Writes the
+  // outputs now ready to out[0..n) in order and returns n (<= max_outputs()).
+  int Push(double time, const double b[3], double f, const double* aux,
+           Output* out);
+  // End of input: emits every sample still pending.
+  int Flush(Output* out);
+  void Reset();
+
+ private:
+  struct Pending {
+    std::uint64_t index;
+    double time, bt, f;
+    double c[3];
+    std::uint32_t flags;
+    std::size_t aux_offset;  // into aux_store_
+    std::size_t position;    // position in its segment
+  };
+  int Emit(std::size_t ring_slot, bool derivative_valid, Output* out);
+  int FlushSegment(Output* out, int n);
+  std::size_t Slot(std::size_t position) const { return position % ring_size_; }
+
+  Options options_;
+  std::size_t term_count_ = 0;
+  std::size_t aux_count_ = 0;
+  std::size_t ring_size_ = 0;
+  std::vector<Pending> ring_;
+  std::vector<double> aux_store_;
+  std::vector<double> rows_;           // max_outputs() rows
+  std::vector<double> coefficients_;
+  std::vector<double> weights_;        // derivative weights, 2k+1
+  int next_row_ = 0;
+  std::uint64_t next_index_ = 0;
+  std::size_t segment_length_ = 0;     // samples in the current segment
+  std::size_t emitted_ = 0;            // of the current segment
+  double last_time_ = 0.0;
+};
+
+// Batch form over whole columns (fit, apply in memory, tests). Runs the
+// TermEngine, so results equal the streaming ones. f may be null (no scalar
+// sensor); aux holds one column pointer per options.terms.aux channel.
+struct TermMatrix {
+  std::size_t rows = 0, cols = 0;
+  std::vector<double> values;       // row-major, rows * cols
+  std::vector<double> bt;           // nT
+  std::vector<double> interference; // with the given coefficients, or 0
+  std::vector<std::uint32_t> flags;
+};
+TermMatrix BuildTermMatrix(const TermEngine::Options& options, std::size_t n,
+                           const double* time, const double* bx,
+                           const double* by, const double* bz,
+                           const double* f,
+                           const std::vector<const double*>& aux,
+                           const double* coefficients = nullptr);
+
+}  // namespace fluxtrim::models
