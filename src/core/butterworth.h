@@ -1,0 +1,95 @@
+#pragma once
+// Digital Butterworth band-pass and zero-phase (forward-backward) filtering.
+//
+// Design: analog Butterworth low-pass prototype (poles on the unit circle),
+// low-pass -> band-pass transformation around the pre-warped band edges,
+// bilinear transform (Oppenheim & Schafer, "Discrete-Time Signal
+// Processing", 3rd ed., sec. 7.1.2 and 7.4), then zeros/poles/gain ->
+// second-order sections. Semantics follow scipy.signal.butter(order,
+// [low_hz, high_hz], btype='bandpass', fs=rate): a band-pass of `order`
+// has 2*order poles. Filtering follows scipy.signal.sosfiltfilt (odd
+// extension padding, steady-state initial conditions as sosfilt_zi).
+//
+// Filtering is always done with second-order sections: the expanded (b, a)
+// form of an 8-pole band-pass with a 0.1 Hz corner at 100 Hz has poles
+// within ~1e-2 of z = 1 and its polynomial coefficients lose most of their
+// significant digits, so TransferFunction() is for coefficient checks only.
+
+#include <array>
+#include <cstddef>
+#include <string>
+#include <vector>
+
+namespace fluxtrim::core {
+
+struct BandPassOptions {
+  int order = 4;         // prototype order; the band-pass has 2*order poles
+  double low_hz = 0.1;   // lower -3 dB edge (Hz)
+  double high_hz = 0.9;  // upper -3 dB edge (Hz); clipped below Nyquist
+  // True when 1 <= order <= 12 and 0 < low_hz < high_hz, all finite.
+  // (The sample rate is checked by BandPass.)
+  bool IsValid(std::string* error) const;
+};
+
+class BandPass {
+ public:
+  // Highest usable upper edge, as a fraction of the Nyquist frequency. An
+  // upper edge at or above Nyquist makes the bilinear pre-warp diverge, so
+  // high_hz is clipped to kMaxHighFraction * rate/2 and clipped() is set.
+  static constexpr double kMaxHighFraction = 0.95;
+
+  // Throws std::invalid_argument when the options are invalid, the sample
+  // rate is not positive and finite, or the band is empty after clipping
+  // (low_hz >= clipped high_hz).
+  BandPass(const BandPassOptions& options, double sample_rate_hz);
+
+  // Zero-phase filtering, scipy.signal.sosfiltfilt(sos, x) semantics
+  // (padtype='odd', padlen = 3 * (2 * sections + 1 - (number of sections
+  // whose b2 and a2 are both zero)), i.e. 3 * (2*order + 1) for the
+  // band-pass). Input must be finite and at least min_length() samples;
+  // shorter input throws std::invalid_argument (callers skip such segments).
+  // y may alias x.
+  std::vector<double> Filter(const std::vector<double>& x) const;
+  void Filter(const double* x, std::size_t n, double* y) const;
+
+  // Shortest input Filter accepts: padlen + 1 samples (scipy requires
+  // x.shape[axis] > padlen).
+  std::size_t min_length() const;
+  // Length of the odd extension added at each end (samples).
+  std::size_t pad_length() const { return pad_length_; }
+
+  // Second-order sections, scipy layout {b0, b1, b2, a0, a1, a2} with
+  // a0 = 1; the overall gain is folded into the first section.
+  const std::vector<std::array<double, 6>>& sections() const {
+    return sections_;
+  }
+
+  // Transfer function H(z) = b(z^-1) / a(z^-1), coefficients in increasing
+  // powers of z^-1 (a[0] = 1), as scipy.signal.butter(..., output='ba').
+  // Numerically unsound to filter with for narrow low bands (see above).
+  void TransferFunction(std::vector<double>* b, std::vector<double>* a) const;
+
+  double low_hz() const { return low_hz_; }
+  double high_hz() const { return high_hz_; }  // after clipping
+  bool clipped() const { return clipped_; }
+  double sample_rate_hz() const { return rate_hz_; }
+  int order() const { return order_; }
+
+ private:
+  int order_ = 0;
+  double rate_hz_ = 0;
+  double low_hz_ = 0;
+  double high_hz_ = 0;
+  bool clipped_ = false;
+  std::size_t pad_length_ = 0;
+  std::vector<std::array<double, 6>> sections_;
+  // sosfilt_zi: steady-state state of each section for a unit step input
+  // (direct form II transposed, 2 states per section).
+  std::vector<std::array<double, 2>> zi_;
+  // Zeros, poles and gain of the digital filter (for TransferFunction).
+  std::vector<double> zeros_real_;  // all zeros are real (+1 and -1)
+  std::vector<std::array<double, 2>> poles_;  // {re, im}
+  double gain_ = 0;
+};
+
+}  // namespace fluxtrim::core
