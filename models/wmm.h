@@ -6,6 +6,8 @@
 #include <string>
 #include <vector>
 
+#include "models/legendre.h"
+
 namespace fluxtrim::models {
 
 // Main field at a point, geodetic north/east/down frame.
@@ -34,19 +36,29 @@ class MagneticModel {
   // lat_deg, lon_deg: WGS84 geodetic latitude and longitude (degrees);
   // alt_m: height above the WGS84 ellipsoid (metres); decimal_year: e.g.
   // 2025.5. Dates outside [epoch, epoch + 5) are still computed: check
-  // IsValidDate to warn.
+  // IsValidDate to warn. Exact at the geographic poles (declination there
+  // follows the longitude given). Throws std::invalid_argument for a
+  // non-finite argument, |lat_deg| > 90, or a point at or below the Earth's
+  // centre. Thread-safe; does not allocate for degree <= 12.
   GeomagneticField Field(double lat_deg, double lon_deg, double alt_m,
                          double decimal_year) const;
   bool IsValidDate(double decimal_year) const;
 
   double epoch() const { return epoch_; }
   const std::string& name() const { return name_; }
+  // Third field of the header line as written (e.g. "11/13/2024").
+  const std::string& release_date() const { return release_date_; }
   int max_degree() const { return max_degree_; }
+
+  // Reference radius of the spherical-harmonic expansion (WMM: 6371.2 km).
+  static constexpr double kReferenceRadius_m = 6371200.0;
 
  private:
   double epoch_ = 0;
   std::string name_;
+  std::string release_date_;
   int max_degree_ = 0;
+  SchmidtLegendre legendre_;
   // g, h, dg, dh indexed [n * (n + 1) / 2 + m].
   std::vector<double> g_, h_, dg_, dh_;
 };
