@@ -59,6 +59,7 @@
 #include <exception>
 #include <istream>
 #include <memory>
+#include <ostream>
 #include <string>
 #include <vector>
 
@@ -112,7 +113,7 @@ class Gdf2Reader : public RecordingReader {
 
   const std::vector<ChannelInfo>& channels() const override;
   std::size_t ReadChunk(Table* chunk, std::size_t max_rows) override;
-  // The path given to OpenGdf2Reader (or the .dat name for streams).
+  // The .dat path (or the .dat name given with streams).
   const std::string& path() const override;
 
   const Gdf2Definition& definition() const;
@@ -139,5 +140,11 @@ std::unique_ptr<RecordingReader> OpenGdf2Reader(const std::string& path,
 std::unique_ptr<RecordingWriter> CreateGdf2Writer(
     const std::string& path, const std::vector<ChannelInfo>& schema,
     const WriteOptions& options);
+
+// The same on two streams that outlive the writer (tests, fuzzer). The .dfn
+// is complete when this returns; Close() flushes dat.
+std::unique_ptr<RecordingWriter> CreateGdf2Writer(
+    std::ostream& dfn, std::ostream& dat,
+    const std::vector<ChannelInfo>& schema, const WriteOptions& options);
 
 }  // namespace fluxtrim::io
