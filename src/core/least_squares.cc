@@ -1,0 +1,204 @@
+#include "src/core/least_squares.h"
+
+#include <cmath>
+#include <memory>
+#include <utility>
+
+#include <Eigen/QR>
+#include <ceres/ceres.h>
+
+namespace fluxtrim::core {
+namespace {
+
+// Residuals R x - z of the compressed data block; Jacobian R (row-major).
+class CompressedDataCost : public ceres::CostFunction {
+ public:
+  CompressedDataCost(const Eigen::MatrixXd* r, const Eigen::VectorXd* z)
+      : r_(r), z_(z) {
+    set_num_residuals(static_cast<int>(r->rows()));
+    mutable_parameter_block_sizes()->push_back(static_cast<int>(r->cols()));
+  }
+  bool Evaluate(double const* const* parameters, double* residuals,
+                double** jacobians) const override {
+    const long p = r_->cols();
+    Eigen::Map<const Eigen::VectorXd> x(parameters[0], p);
+    Eigen::Map<Eigen::VectorXd>(residuals, r_->rows()) = (*r_) * x - (*z_);
+    if (jacobians && jacobians[0]) {
+      Eigen::Map<Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic,
+                               Eigen::RowMajor>>(jacobians[0], r_->rows(), p) =
+          *r_;
+    }
+    return true;
+  }
+
+ private:
+  const Eigen::MatrixXd* r_;
+  const Eigen::VectorXd* z_;
+};
+
+// Residuals G x for a stack of weighted rows G (prior and constraints).
+class LinearPriorCost : public ceres::CostFunction {
+ public:
+  explicit LinearPriorCost(Eigen::MatrixXd g) : g_(std::move(g)) {
+    set_num_residuals(static_cast<int>(g_.rows()));
+    mutable_parameter_block_sizes()->push_back(static_cast<int>(g_.cols()));
+  }
+  bool Evaluate(double const* const* parameters, double* residuals,
+                double** jacobians) const override {
+    Eigen::Map<const Eigen::VectorXd> x(parameters[0], g_.cols());
+    Eigen::Map<Eigen::VectorXd>(residuals, g_.rows()) = g_ * x;
+    if (jacobians && jacobians[0]) {
+      Eigen::Map<Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic,
+                               Eigen::RowMajor>>(jacobians[0], g_.rows(),
+                                                 g_.cols()) = g_;
+    }
+    return true;
+  }
+
+ private:
+  Eigen::MatrixXd g_;
+};
+
+}  // namespace
+
+bool LeastSquaresOptions::IsValid(std::string* error) const {
+  for (double w : prior_weights) {
+    if (!(w >= 0) || !std::isfinite(w)) {
+      if (error) *error = "prior weights must be finite and >= 0";
+      return false;
+    }
+  }
+  if (!(constraint_weight > 0) || !std::isfinite(constraint_weight)) {
+    if (error) *error = "constraint weight must be finite and > 0";
+    return false;
+  }
+  if (max_iterations < 1) {
+    if (error) *error = "max_iterations must be >= 1";
+    return false;
+  }
+  return true;
+}
+
+CompressedSystem Compress(const Eigen::Ref<const Eigen::MatrixXd>& a,
+                          const Eigen::Ref<const Eigen::VectorXd>& y) {
+  CompressedSystem s;
+  const long n = a.rows();
+  const long p = a.cols();
+  s.rows = n;
+  s.y_sum_squares = y.squaredNorm();
+  Eigen::HouseholderQR<Eigen::MatrixXd> qr(a);
+  s.r = qr.matrixQR().topRows(p).triangularView<Eigen::Upper>();
+  Eigen::VectorXd qty = y;
+  qty.applyOnTheLeft(qr.householderQ().transpose());
+  s.z = qty.head(p);
+  s.outside_sum_squares = qty.tail(n - p).squaredNorm();
+  return s;
+}
+
+LeastSquaresSummary SolveLeastSquares(const CompressedSystem& system,
+                                      const LeastSquaresOptions& options) {
+  LeastSquaresSummary summary;
+  const long p = system.r.cols();
+  std::string error;
+  if (!options.IsValid(&error)) {
+    summary.message = error;
+    return summary;
+  }
+  if (p < 1 || system.r.rows() != p || system.z.size() != p) {
+    summary.message = "compressed system has inconsistent sizes";
+    return summary;
+  }
+  if (!options.prior_weights.empty() &&
+      static_cast<long>(options.prior_weights.size()) != p) {
+    summary.message = "prior_weights must have one value per term";
+    return summary;
+  }
+  summary.x = Eigen::VectorXd::Zero(p);
+
+  ceres::Problem problem;
+  problem.AddResidualBlock(new CompressedDataCost(&system.r, &system.z),
+                           nullptr, summary.x.data());
+  // Prior rows: diagonal weights, then the weighted constraint rows.
+  long prior_rows = 0;
+  for (double w : options.prior_weights) prior_rows += (w > 0) ? 1 : 0;
+  prior_rows += static_cast<long>(options.constraints.size());
+  if (prior_rows > 0) {
+    Eigen::MatrixXd g = Eigen::MatrixXd::Zero(prior_rows, p);
+    long row = 0;
+    for (long j = 0; j < static_cast<long>(options.prior_weights.size()); ++j) {
+      if (options.prior_weights[j] > 0) g(row++, j) = options.prior_weights[j];
+    }
+    for (const auto& c : options.constraints) {
+      if (static_cast<long>(c.size()) != p) {
+        summary.message = "constraint rows must have one value per term";
+        return summary;
+      }
+      for (long j = 0; j < p; ++j) g(row, j) = options.constraint_weight * c[j];
+      ++row;
+    }
+    problem.AddResidualBlock(new LinearPriorCost(std::move(g)), nullptr,
+                             summary.x.data());
+  }
+
+  ceres::Solver::Options solver_options;
+  solver_options.linear_solver_type = ceres::DENSE_QR;
+  solver_options.minimizer_type = ceres::TRUST_REGION;
+  solver_options.trust_region_strategy_type = ceres::LEVENBERG_MARQUARDT;
+  // The problem is linear: a huge initial trust region makes the first
+  // Levenberg-Marquardt step the Gauss-Newton step (its damping D/radius is
+  // ~1e-16 relative), and the second iteration confirms convergence.
+  solver_options.initial_trust_region_radius = 1e16;
+  solver_options.max_num_iterations = options.max_iterations;
+  solver_options.function_tolerance = 1e-16;
+  solver_options.gradient_tolerance = 1e-30;
+  solver_options.parameter_tolerance = 1e-15;
+  solver_options.logging_type = ceres::SILENT;
+  solver_options.minimizer_progress_to_stdout = false;
+  solver_options.num_threads = 1;
+  ceres::Solver::Summary ceres_summary;
+  ceres::Solve(solver_options, &problem, &ceres_summary);
+  summary.iterations = static_cast<int>(ceres_summary.iterations.size());
+  summary.message = ceres_summary.BriefReport();
+  if (!ceres_summary.IsSolutionUsable() || !summary.x.allFinite()) {
+    summary.message = "least-squares solve failed: " + summary.message;
+    return summary;
+  }
+  // ||A x - y||^2 = ||R x - z||^2 + outside part.
+  summary.data_sum_squares =
+      (system.r * summary.x - system.z).squaredNorm() +
+      system.outside_sum_squares;
+
+  if (options.compute_covariance) {
+    ceres::Covariance::Options cov_options;
+    cov_options.algorithm_type = ceres::DENSE_SVD;
+    cov_options.num_threads = 1;
+    ceres::Covariance covariance(cov_options);
+    std::vector<std::pair<const double*, const double*>> blocks = {
+        {summary.x.data(), summary.x.data()}};
+    if (covariance.Compute(blocks, &problem)) {
+      Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>
+          cov(p, p);
+      if (covariance.GetCovarianceBlock(summary.x.data(), summary.x.data(),
+                                        cov.data())) {
+        summary.covariance = cov;
+        summary.covariance_ok = summary.covariance.allFinite();
+      }
+    }
+  }
+  summary.usable = true;
+  return summary;
+}
+
+LeastSquaresSummary SolveLeastSquares(
+    const Eigen::Ref<const Eigen::MatrixXd>& a,
+    const Eigen::Ref<const Eigen::VectorXd>& y,
+    const LeastSquaresOptions& options) {
+  if (a.rows() < a.cols() || a.rows() != y.size() || a.cols() < 1) {
+    LeastSquaresSummary summary;
+    summary.message = "least squares needs rows >= cols >= 1 and one y per row";
+    return summary;
+  }
+  return SolveLeastSquares(Compress(a, y), options);
+}
+
+}  // namespace fluxtrim::core

@@ -1,0 +1,79 @@
+#pragma once
+// Linear least squares with a ridge prior, solved with Ceres.
+//
+// Problem (all quantities in the caller's units; fit.cc passes equilibrated
+// columns, see fit.h):
+//
+//   minimise  ||A x - y||^2 + sum_j w_j^2 x_j^2 + sum_c (g_c . x)^2
+//
+// where A is n x p (row-major or column-major Eigen matrix, n >= p), y has n
+// values, w_j are per-term prior weights (the ridge sqrt(n lambda) for every
+// term, larger for terms held at zero) and g_c are optional linear constraint
+// rows enforced softly with a large weight (gauge fixing of the 18-term set).
+//
+// Speed: A is first compressed with a Householder QR in Eigen (A = Q R), and
+// Ceres is given the p residuals R x - Q^T y plus the prior blocks. Because
+// ||A x - y||^2 = ||R x - Q^T y||^2 + ||(I - Q Q^T) y||^2 and the last term
+// does not depend on x, this is mathematically the same least-squares
+// problem as the n-row one (Golub & Van Loan, Matrix Computations, 4th ed.,
+// section 5.3.3), with the same minimiser and the same Gauss-Newton Hessian
+// (J^T J = R^T R + priors), hence the same covariance.
+
+#include <string>
+#include <vector>
+
+#include <Eigen/Core>
+
+namespace fluxtrim::core {
+
+// The QR-compressed form of (A, y): R upper-triangular p x p, z = Q^T y, and
+// the part of ||y||^2 outside the range of A.
+struct CompressedSystem {
+  Eigen::MatrixXd r;              // p x p, upper triangular
+  Eigen::VectorXd z;              // p
+  double outside_sum_squares = 0; // ||y||^2 - ||z||^2, >= 0
+  double y_sum_squares = 0;       // ||y||^2
+  long rows = 0;                  // n
+};
+
+// Householder QR compression (Eigen::HouseholderQR). Requires rows >= cols.
+CompressedSystem Compress(const Eigen::Ref<const Eigen::MatrixXd>& a,
+                          const Eigen::Ref<const Eigen::VectorXd>& y);
+
+struct LeastSquaresOptions {
+  // Per-term prior weights w_j (residual w_j x_j); empty means no prior.
+  std::vector<double> prior_weights;
+  // Soft linear constraints g . x = 0, one row of p values each, applied
+  // with weight constraint_weight.
+  std::vector<std::vector<double>> constraints;
+  double constraint_weight = 1e6;
+  // Compute (J^T J)^{-1} with ceres::Covariance.
+  bool compute_covariance = true;
+  int max_iterations = 50;
+
+  bool IsValid(std::string* error) const;
+};
+
+struct LeastSquaresSummary {
+  bool usable = false;          // solution found and finite
+  std::string message;          // Ceres' report or why it failed
+  Eigen::VectorXd x;            // p
+  // (J^T J)^{-1} of the problem solved (data + priors), unscaled: multiply
+  // by the residual variance for the coefficient covariance. Empty when not
+  // requested or when Ceres could not compute it (rank deficient).
+  Eigen::MatrixXd covariance;
+  bool covariance_ok = false;
+  double data_sum_squares = 0;  // ||A x - y||^2 at the solution (no priors)
+  int iterations = 0;
+};
+
+// Solves the compressed problem. system.r must be p x p with p >= 1.
+LeastSquaresSummary SolveLeastSquares(const CompressedSystem& system,
+                                      const LeastSquaresOptions& options = {});
+
+// Convenience: Compress, then SolveLeastSquares.
+LeastSquaresSummary SolveLeastSquares(const Eigen::Ref<const Eigen::MatrixXd>& a,
+                                      const Eigen::Ref<const Eigen::VectorXd>& y,
+                                      const LeastSquaresOptions& options = {});
+
+}  // namespace fluxtrim::core
