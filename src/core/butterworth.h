@@ -52,6 +52,13 @@ class BandPass {
   std::vector<double> Filter(const std::vector<double>& x) const;
   void Filter(const double* x, std::size_t n, double* y) const;
 
+  // Filters each maximal run of finite samples on its own (a gap restarts
+  // the filter, as a new recording would). Samples in gaps and in runs
+  // shorter than min_length() come out NaN; their count goes to
+  // *unfiltered when given.
+  std::vector<double> FilterWithGaps(const std::vector<double>& x,
+                                     std::size_t* unfiltered = nullptr) const;
+
   // Shortest input Filter accepts: padlen + 1 samples (scipy requires
   // x.shape[axis] > padlen).
   std::size_t min_length() const;
