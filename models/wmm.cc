@@ -213,8 +213,9 @@ bool MagneticModel::IsValidDate(double decimal_year) const {
   return decimal_year >= epoch_ && decimal_year < epoch_ + 5.0;
 }
 
-GeomagneticField MagneticModel::Field(double lat_deg, double lon_deg,
-                                      double alt_m, double decimal_year) const {
+void MagneticModel::Synthesize(double lat_deg, double lon_deg, double alt_m,
+                               double decimal_year, double* xyz,
+                               double* rate) const {
   if (!std::isfinite(lat_deg) || !std::isfinite(lon_deg) ||
       !std::isfinite(alt_m) || !std::isfinite(decimal_year)) {
     throw std::invalid_argument(
@@ -226,15 +227,14 @@ GeomagneticField MagneticModel::Field(double lat_deg, double lon_deg,
                                 std::to_string(lat_deg) +
                                 " deg is outside [-90, 90]");
   }
+  if (!(alt_m > -kWgs84SemiMajorAxis_m / 2.0)) {
+    throw std::invalid_argument(
+        "MagneticModel::Field: altitude " + std::to_string(alt_m) +
+        " m is implausible (deeper than half the Earth radius)");
+  }
   const double lat_rad = lat_deg * kDegToRad;
   const double lon_rad = lon_deg * kDegToRad;
   const GeocentricPoint pos = GeodeticToGeocentric(lat_rad, alt_m);
-  if (!(pos.radius_m > 0.0) ||
-      !(alt_m > -kWgs84SemiMajorAxis_m / 2.0)) {
-    throw std::invalid_argument("MagneticModel::Field: altitude " +
-                                std::to_string(alt_m) +
-                                " m is implausible (deeper than half the Earth radius)");
-  }
 
   const int n_max = max_degree_;
   const int size = legendre_.size();
@@ -273,13 +273,16 @@ GeomagneticField MagneticModel::Field(double lat_deg, double lon_deg,
   // eqs. 10-12): B_r = -dV/dr, B_theta = -(1/r) dV/dtheta,
   // B_lambda = -(1/(r sin theta)) dV/dlambda with
   // V = a sum_n (a/r)^(n+1) sum_m (g cos(m lambda) + h sin(m lambda)) P_n^m.
+  // The same sum over dg, dh gives the rates (the synthesis is linear).
   const double dt = decimal_year - epoch_;
   const double ratio = kReferenceRadius_m / pos.radius_m;
   double ratio_pow = ratio * ratio;  // (a/r)^(n+2) after the update, n = 1
-  double b_r = 0, b_theta = 0, b_lambda = 0;
+  double b[3] = {0, 0, 0};   // r, theta, lambda
+  double db[3] = {0, 0, 0};  // their rates
   for (int n = 1; n <= n_max; ++n) {
     ratio_pow *= ratio;
     double sum_r = 0, sum_theta = 0, sum_lambda = 0;
+    double dsum_r = 0, dsum_theta = 0, dsum_lambda = 0;
     for (int m = 0; m <= n; ++m) {
       const int i = SchmidtLegendre::Index(n, m);
       const double g = g_[i] + dt * dg_[i];
@@ -289,31 +292,91 @@ GeomagneticField MagneticModel::Field(double lat_deg, double lon_deg,
       sum_r += gc_hs * p[i];
       sum_theta += gc_hs * dp[i];
       sum_lambda += m * gs_hc * q[i];
+      if (rate != nullptr) {
+        const double dgc_hs = dg_[i] * cos_ml[m] + dh_[i] * sin_ml[m];
+        const double dgs_hc = dg_[i] * sin_ml[m] - dh_[i] * cos_ml[m];
+        dsum_r += dgc_hs * p[i];
+        dsum_theta += dgc_hs * dp[i];
+        dsum_lambda += m * dgs_hc * q[i];
+      }
     }
-    b_r += ratio_pow * (n + 1) * sum_r;
-    b_theta -= ratio_pow * sum_theta;
-    b_lambda += ratio_pow * sum_lambda;
+    b[0] += ratio_pow * (n + 1) * sum_r;
+    b[1] -= ratio_pow * sum_theta;
+    b[2] += ratio_pow * sum_lambda;
+    db[0] += ratio_pow * (n + 1) * dsum_r;
+    db[1] -= ratio_pow * dsum_theta;
+    db[2] += ratio_pow * dsum_lambda;
   }
-  // Geocentric north, east, down.
-  const double x_c = -b_theta;
-  const double y_c = b_lambda;
-  const double z_c = -b_r;
 
-  // Rotate by psi = geocentric - geodetic latitude about the east axis
-  // (WMM report eq. 17).
+  // Geocentric north = -B_theta, east = B_lambda, down = -B_r, rotated by
+  // psi = geocentric - geodetic latitude about the east axis (WMM report
+  // eq. 17).
   const double sin_lat = std::sin(lat_rad), cos_lat = std::cos(lat_rad);
   const double sin_psi = pos.sin_lat * cos_lat - pos.cos_lat * sin_lat;
   const double cos_psi = pos.cos_lat * cos_lat + pos.sin_lat * sin_lat;
+  const auto rotate = [&](const double* v, double* out) {
+    const double x_c = -v[1], y_c = v[2], z_c = -v[0];
+    out[0] = x_c * cos_psi - z_c * sin_psi;
+    out[1] = y_c;
+    out[2] = x_c * sin_psi + z_c * cos_psi;
+  };
+  rotate(b, xyz);
+  if (rate != nullptr) rotate(db, rate);
+}
 
+namespace {
+
+GeomagneticField Elements(const double* xyz) {
   GeomagneticField out;
-  out.x_nT = x_c * cos_psi - z_c * sin_psi;
-  out.y_nT = y_c;
-  out.z_nT = x_c * sin_psi + z_c * cos_psi;
+  out.x_nT = xyz[0];
+  out.y_nT = xyz[1];
+  out.z_nT = xyz[2];
   out.h_nT = std::hypot(out.x_nT, out.y_nT);
   out.f_nT = std::hypot(out.h_nT, out.z_nT);
   out.incl_deg = std::atan2(out.z_nT, out.h_nT) * kRadToDeg;
   out.decl_deg = std::atan2(out.y_nT, out.x_nT) * kRadToDeg;
   return out;
+}
+
+}  // namespace
+
+GeomagneticField MagneticModel::Field(double lat_deg, double lon_deg,
+                                      double alt_m, double decimal_year) const {
+  double xyz[3];
+  Synthesize(lat_deg, lon_deg, alt_m, decimal_year, xyz, nullptr);
+  return Elements(xyz);
+}
+
+GeomagneticFieldWithRate MagneticModel::FieldWithRate(
+    double lat_deg, double lon_deg, double alt_m, double decimal_year) const {
+  double xyz[3], rate[3];
+  Synthesize(lat_deg, lon_deg, alt_m, decimal_year, xyz, rate);
+  GeomagneticFieldWithRate out;
+  out.field = Elements(xyz);
+  const GeomagneticField& f = out.field;
+  GeomagneticField& d = out.per_year;
+  d.x_nT = rate[0];
+  d.y_nT = rate[1];
+  d.z_nT = rate[2];
+  // Chain rule on H = hypot(X, Y), F = hypot(H, Z), I = atan2(Z, H),
+  // D = atan2(Y, X).
+  if (f.h_nT > 0) {
+    d.h_nT = (f.x_nT * d.x_nT + f.y_nT * d.y_nT) / f.h_nT;
+    d.decl_deg =
+        (f.x_nT * d.y_nT - f.y_nT * d.x_nT) / (f.h_nT * f.h_nT) * kRadToDeg;
+  }
+  if (f.f_nT > 0) {
+    d.f_nT = (f.h_nT * d.h_nT + f.z_nT * d.z_nT) / f.f_nT;
+    d.incl_deg =
+        (f.h_nT * d.z_nT - f.z_nT * d.h_nT) / (f.f_nT * f.f_nT) * kRadToDeg;
+  }
+  return out;
+}
+
+CompassZone ClassifyCompassZone(double h_nT) {
+  if (h_nT < kWmmBlackoutH_nT) return CompassZone::kBlackout;
+  if (h_nT < kWmmCautionH_nT) return CompassZone::kCaution;
+  return CompassZone::kNormal;
 }
 
 double ParseDecimalYear(const std::string& text) {

@@ -21,6 +21,28 @@ struct GeomagneticField {
   double decl_deg = 0;  // declination, positive east of true north
 };
 
+// The field and its annual rate of change (secular variation).
+struct GeomagneticFieldWithRate {
+  GeomagneticField field;
+  // Rates per year, same members: x_nT..f_nT in nT/yr, incl_deg and
+  // decl_deg in deg/yr.
+  GeomagneticField per_year;
+};
+
+// Limits of the WMM's stated domain (WMM2025 Technical Report, NOAA NCEI /
+// BGS, sections on validity and on compass use near the magnetic poles;
+// from memory). Outside them the model still computes.
+// Heights above the WGS84 ellipsoid for which the model is specified.
+inline constexpr double kWmmMinAlt_m = -1000.0;
+inline constexpr double kWmmMaxAlt_m = 850000.0;
+// Where the horizontal intensity is below 2000 nT a magnetic compass is
+// unreliable ("blackout zone"); below 6000 nT declination errors grow
+// ("caution zone").
+inline constexpr double kWmmBlackoutH_nT = 2000.0;
+inline constexpr double kWmmCautionH_nT = 6000.0;
+enum class CompassZone { kNormal, kCaution, kBlackout };
+CompassZone ClassifyCompassZone(double h_nT);
+
 class MagneticModel {
  public:
   // The WMM2025 model compiled into the library (models/data/WMM2025.COF).
@@ -42,6 +64,14 @@ class MagneticModel {
   // centre. Thread-safe; does not allocate for degree <= 12.
   GeomagneticField Field(double lat_deg, double lon_deg, double alt_m,
                          double decimal_year) const;
+  // Field() and the annual rates of every element in one pass: X, Y, Z
+  // rates are the synthesis of dg, dh; H, F, I, D rates follow by the chain
+  // rule (WMM2025 Technical Report, eq. 19, from memory). Same arguments,
+  // frame and errors as Field(). The rate of D is undefined where H = 0
+  // (returned as 0 there).
+  GeomagneticFieldWithRate FieldWithRate(double lat_deg, double lon_deg,
+                                         double alt_m,
+                                         double decimal_year) const;
   bool IsValidDate(double decimal_year) const;
 
   double epoch() const { return epoch_; }
@@ -59,6 +89,11 @@ class MagneticModel {
   std::string release_date_;
   int max_degree_ = 0;
   SchmidtLegendre legendre_;
+
+  // Geodetic north/east/down X, Y, Z into xyz[3]; with rate != nullptr also
+  // their rates per year into rate[3].
+  void Synthesize(double lat_deg, double lon_deg, double alt_m,
+                  double decimal_year, double* xyz, double* rate) const;
   // g, h, dg, dh indexed [n * (n + 1) / 2 + m].
   std::vector<double> g_, h_, dg_, dh_;
 };

@@ -242,6 +242,65 @@ TEST(WmmTest, LongitudesDifferingByAFullTurnGiveTheSameField) {
   EXPECT_NEAR(a.z_nT, b.z_nT, kTol_nT);
 }
 
+TEST(WmmTest, RatesAreTheTimeDerivativesOfTheElements) {
+  // Reference: the definition of the derivative applied to Field() (tested
+  // above against the published values). X, Y, Z are linear in time, so
+  // their one-year difference is exact up to rounding; H, F, I, D are
+  // smooth, so a central difference with dt = 1e-3 yr has a truncation error
+  // ~ dt^2 |third derivative| that is negligible against the tolerances.
+  const MagneticModel& wmm = MagneticModel::Wmm2025();
+  struct Point {
+    double lat_deg, lon_deg, alt_m;
+  };
+  for (const Point& p : {Point{48.1, 11.6, 500.0}, Point{-33.9, 151.2, 0.0},
+                         Point{78.2, 15.6, 3000.0},
+                         Point{-89.0, 10.0, 10000.0}}) {
+    const double t = 2026.4;
+    const GeomagneticFieldWithRate fr =
+        wmm.FieldWithRate(p.lat_deg, p.lon_deg, p.alt_m, t);
+    const GeomagneticField f = wmm.Field(p.lat_deg, p.lon_deg, p.alt_m, t);
+    EXPECT_EQ(fr.field.x_nT, f.x_nT);
+    EXPECT_EQ(fr.field.decl_deg, f.decl_deg);
+    const GeomagneticField a =
+        wmm.Field(p.lat_deg, p.lon_deg, p.alt_m, t + 1.0);
+    constexpr double kLinearTol_nT = 1e-8;  // rounding of 5e4-sized sums
+    EXPECT_NEAR(fr.per_year.x_nT, a.x_nT - f.x_nT, kLinearTol_nT);
+    EXPECT_NEAR(fr.per_year.y_nT, a.y_nT - f.y_nT, kLinearTol_nT);
+    EXPECT_NEAR(fr.per_year.z_nT, a.z_nT - f.z_nT, kLinearTol_nT);
+    constexpr double kDt = 1e-3;
+    const GeomagneticField plus =
+        wmm.Field(p.lat_deg, p.lon_deg, p.alt_m, t + kDt);
+    const GeomagneticField minus =
+        wmm.Field(p.lat_deg, p.lon_deg, p.alt_m, t - kDt);
+    // Rounding of 5e4 nT values over 2e-3 yr: ~1e-11 / 2e-3 = 5e-9 nT/yr.
+    constexpr double kRateTol_nT = 1e-6;
+    constexpr double kRateTolDeg = 1e-8;
+    EXPECT_NEAR(fr.per_year.h_nT, (plus.h_nT - minus.h_nT) / (2 * kDt),
+                kRateTol_nT);
+    EXPECT_NEAR(fr.per_year.f_nT, (plus.f_nT - minus.f_nT) / (2 * kDt),
+                kRateTol_nT);
+    EXPECT_NEAR(fr.per_year.incl_deg,
+                (plus.incl_deg - minus.incl_deg) / (2 * kDt), kRateTolDeg);
+    EXPECT_NEAR(fr.per_year.decl_deg,
+                AngleDiffDeg(plus.decl_deg, minus.decl_deg) / (2 * kDt),
+                kRateTolDeg);
+  }
+}
+
+TEST(WmmTest, HorizontalFieldNearTheNorthMagneticPoleIsInTheBlackoutZone) {
+  // WMM2025 places the north dip pole near 85.8 N, 139.3 W in 2025 (WMM2025
+  // Technical Report, from memory); the blackout zone (H < 2000 nT)
+  // surrounds it. Mid-latitudes are far outside the caution zone.
+  const MagneticModel& wmm = MagneticModel::Wmm2025();
+  const GeomagneticField pole = wmm.Field(85.8, -139.3, 0.0, 2025.0);
+  EXPECT_EQ(ClassifyCompassZone(pole.h_nT), CompassZone::kBlackout)
+      << pole.h_nT;
+  const GeomagneticField paris = wmm.Field(48.9, 2.3, 0.0, 2025.0);
+  EXPECT_EQ(ClassifyCompassZone(paris.h_nT), CompassZone::kNormal);
+  EXPECT_EQ(ClassifyCompassZone(kWmmCautionH_nT - 1), CompassZone::kCaution);
+  EXPECT_EQ(ClassifyCompassZone(kWmmBlackoutH_nT - 1), CompassZone::kBlackout);
+}
+
 TEST(WmmTest, FieldRejectsNonFiniteArgumentsAndLatitudeBeyondThePoles) {
   const MagneticModel& wmm = MagneticModel::Wmm2025();
   const double nan = std::numeric_limits<double>::quiet_NaN();
