@@ -154,6 +154,7 @@ void TermEngine::SetCoefficients(const double* coefficients) {
 void TermEngine::Reset() {
   next_row_ = 0;
   next_index_ = 0;
+  segments_ = 0;
   segment_length_ = 0;
   emitted_ = 0;
   last_time_ = 0.0;
@@ -164,6 +165,7 @@ int TermEngine::Emit(std::size_t position, bool derivative_valid,
   const Pending& p = ring_[Slot(position)];
   Output& o = *out;
   o.index = p.index;
+  o.segment = p.segment;
   o.time = p.time;
   o.bt = p.bt;
   o.f = p.f;
@@ -224,6 +226,7 @@ int TermEngine::Push(double time, const double b[3], double f,
     Output& o = out[n++];
     o = Output();
     o.index = index;
+    o.segment = segments_++;
     o.time = time;
     o.f = f;
     o.bt = std::numeric_limits<double>::quiet_NaN();
@@ -240,8 +243,10 @@ int TermEngine::Push(double time, const double b[3], double f,
     return n;
   }
   const std::size_t position = segment_length_++;
+  if (position == 0) ++segments_;
   Pending& p = ring_[Slot(position)];
   p.index = index;
+  p.segment = segments_ - 1;
   p.time = time;
   p.f = f;
   p.bt = std::isfinite(f) ? f : norm;

@@ -97,6 +97,8 @@ class TermEngine {
 
   struct Output {
     std::uint64_t index = 0;  // 0-based sequence number of the pushed sample
+    std::uint64_t segment = 0;  // contiguous-segment number (a bad sample is
+                                // a segment of its own)
     double time = 0.0;        // s
     double bt = 0.0;          // total field used, nT (f if finite, else |B|)
     double f = 0.0;           // scalar reading as pushed (NaN if none)
@@ -131,6 +133,7 @@ class TermEngine {
  private:
   struct Pending {
     std::uint64_t index;
+    std::uint64_t segment;
     double time, bt, f;
     double c[3];
     std::uint32_t flags;
@@ -152,6 +155,7 @@ class TermEngine {
   std::vector<double> weights_;        // derivative weights, 2k+1
   int next_row_ = 0;
   std::uint64_t next_index_ = 0;
+  std::uint64_t segments_ = 0;         // segments started so far
   std::size_t segment_length_ = 0;     // samples in the current segment
   std::size_t emitted_ = 0;            // of the current segment
   double last_time_ = 0.0;

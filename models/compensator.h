@@ -1,0 +1,106 @@
+#pragma once
+// Sample-by-sample compensation with a fitted model: the one engine behind
+// `apply` (in memory and chunked), `stream` and the embeddable runtime, so
+// that all three give the same numbers. Dependency-free, no allocation after
+// construction.
+//
+//   f_interference(t) = H(t) - interference_mean_nT
+//   f_comp(t)         = f(t + lag_s) - f_interference(t)
+//
+// H is the Tolles-Lawson interference of the model (tolles_lawson.h) built
+// from the fluxgate (after the sensor calibration when the model has one).
+// Without a scalar sensor, f is the (calibrated) fluxgate magnitude |B|.
+// The lag is applied by Catmull-Rom cubic interpolation of f on the nominal
+// sample grid of the sample's segment (the interpolant of
+// ceres::CubicInterpolator); indices beyond the segment are clamped to its
+// ends and the sample is flagged kFlagLagEdge.
+//
+// Latency: an output leaves latency_samples() samples after its input,
+// k (the derivative half-width) plus what a positive lag needs.
+
+#include <cstddef>
+#include <cstdint>
+#include <vector>
+
+#include "models/fluxgate_sensor.h"
+#include "models/tolles_lawson.h"
+
+namespace fluxtrim::models {
+
+// Set when the lag interpolation reached past the ends of the segment.
+inline constexpr std::uint32_t kFlagLagEdge = 1u << 4;
+
+struct CompensatorModel {
+  TermEngine::Options engine;           // terms, k, nominal rate, gap factor
+  std::vector<double> coefficients;     // physical units, one per term
+  double lag_s = 0.0;
+  double interference_mean_nT = 0.0;
+  bool has_attitude_range = false;      // flag attitude outside the fit's range
+  double roll_min_deg = 0, roll_max_deg = 0;
+  double pitch_min_deg = 0, pitch_max_deg = 0;
+  bool scalar_sensor = true;            // false: f is the fluxgate magnitude
+  bool has_sensor = false;              // apply the sensor calibration first
+  SensorCalibration sensor;
+};
+
+struct CompensatedSample {
+  std::uint64_t index = 0;     // 0-based sequence number of the input sample
+  double time = 0;             // s
+  double f_comp = 0;           // nT (NaN for a bad sample)
+  double f_interference = 0;   // nT, model mean level removed
+  double bt = 0;               // total field used by the terms, nT
+  std::uint32_t flags = 0;     // SampleFlag bits, kFlagLagEdge
+};
+
+class Compensator {
+ public:
+  // Throws std::invalid_argument when the model is inconsistent (coefficient
+  // count, half-width, rate).
+  explicit Compensator(const CompensatorModel& model);
+
+  // One input sample. b: raw fluxgate (nT, body axes); f: scalar reading or
+  // NaN when the platform has none; aux: one value per model aux channel
+  // (null when none); roll_deg/pitch_deg: NaN when not recorded; temp_c:
+  // sensor temperature (ignored unless the calibration has coefficients).
+  // Writes the outputs now ready to out[0..n), in input order, returns n
+  // (n <= max_outputs()).
+  int Push(double time, const double b[3], double f, const double* aux,
+           double roll_deg, double pitch_deg, double temp_c,
+           CompensatedSample* out);
+  // End of input: emits every pending sample.
+  int Flush(CompensatedSample* out);
+
+  int max_outputs() const { return max_outputs_; }
+  // Samples between an input and its output (fixed).
+  int latency_samples() const;
+  std::size_t term_count() const { return engine_.term_count(); }
+  const CompensatorModel& model() const { return model_; }
+
+ private:
+  struct Record {
+    std::uint64_t index, segment;
+    double time, f, h, bt;
+    std::uint32_t flags;
+  };
+  void Store(const TermEngine::Output& output);
+  int Drain(bool flushing, CompensatedSample* out, int n);
+  void Finish(std::uint64_t index, CompensatedSample* out);
+  const Record& At(std::uint64_t index) const {
+    return ring_[static_cast<std::size_t>(index % ring_.size())];
+  }
+
+  CompensatorModel model_;
+  TermEngine engine_;
+  std::vector<TermEngine::Output> engine_out_;
+  std::vector<std::uint8_t> attitude_outside_;  // by index % ring size
+  std::vector<Record> ring_;
+  int lag_floor_ = 0;       // floor(lag / dt)
+  double lag_frac_ = 0.0;   // lag / dt - floor
+  bool lag_zero_ = true;
+  std::uint64_t pushed_ = 0;     // input samples
+  std::uint64_t received_ = 0;   // records stored from the engine
+  std::uint64_t emitted_ = 0;    // records turned into outputs
+  int max_outputs_ = 0;
+};
+
+}  // namespace fluxtrim::models
