@@ -1,10 +1,193 @@
-// fluxtrim fit: not built yet.
+// fluxtrim fit REC -o MODEL: Tolles-Lawson compensation fit of a
+// compensation flight (the numerics live in src/core/fit.h).
+#include <iostream>
+#include <memory>
+#include <sstream>
+#include <string>
+#include <vector>
+
+#include "fluxtrim/version.h"
+#include "io/model_file.h"
 #include "src/cli/commands.h"
+#include "src/cli/common.h"
+#include "src/core/fit.h"
+#include "src/core/fit_model.h"
+#include "src/core/fit_report.h"
 
 namespace fluxtrim::cli {
+namespace {
+
+struct FitArgs {
+  std::string recording;
+  std::string model;
+  std::string terms = "default";
+  std::string aux;
+  std::string ridge = "auto";
+  std::string loss = "none";
+  std::string segments;
+  std::string band = "0.1,0.9";
+  int order = 4;
+  int half_width = 0;
+  bool no_lag = false;
+  double max_lag_s = 1.0;
+  bool no_cross_validation = false;
+  std::string summary_json;
+  InputArgs input;
+};
+
+std::vector<std::string> SplitComma(const std::string& s) {
+  std::vector<std::string> out;
+  std::stringstream words(s);
+  std::string word;
+  while (std::getline(words, word, ',')) {
+    const auto b = word.find_first_not_of(" \t");
+    const auto e = word.find_last_not_of(" \t");
+    if (b != std::string::npos) out.push_back(word.substr(b, e - b + 1));
+  }
+  return out;
+}
+
+double ParseNumber(const std::string& option, const std::string& text) {
+  try {
+    std::size_t used = 0;
+    const double v = std::stod(text, &used);
+    if (used != text.size()) throw std::invalid_argument(text);
+    return v;
+  } catch (const std::exception&) {
+    throw CLI::ValidationError(option, "expected a number, got '" + text + "'");
+  }
+}
+
+core::FitOptions MakeFitOptions(const FitArgs& args) {
+  core::FitOptions options;
+  try {
+    options.terms = models::ParseTermSet(args.terms);
+  } catch (const std::invalid_argument& e) {
+    throw CLI::ValidationError("--terms", e.what());
+  }
+  options.terms.aux = SplitComma(args.aux);
+  if (args.ridge == "auto") {
+    options.ridge_auto = true;
+  } else {
+    options.ridge_auto = false;
+    options.ridge = ParseNumber("--ridge", args.ridge);
+  }
+  if (!core::ParseRobustLoss(args.loss, &options.loss)) {
+    throw CLI::ValidationError("--loss", "expected none, huber or cauchy");
+  }
+  const std::vector<std::string> band = SplitComma(args.band);
+  if (band.size() != 2) {
+    throw CLI::ValidationError("--band", "expected LOW,HIGH in Hz, e.g. 0.1,0.9");
+  }
+  options.band.low_hz = ParseNumber("--band", band[0]);
+  options.band.high_hz = ParseNumber("--band", band[1]);
+  options.band.order = args.order;
+  options.derivative_half_width = args.half_width;
+  options.estimate_lag = !args.no_lag;
+  options.max_lag_s = args.max_lag_s;
+  options.cross_validate = !args.no_cross_validation;
+  options.source = args.recording;
+  std::string error;
+  if (!options.IsValid(&error)) throw CLI::ValidationError("fit", error);
+  return options;
+}
+
+int RunFit(const FitArgs& args) {
+  core::FitOptions options = MakeFitOptions(args);
+  io::ReadOptions read = MakeReadOptions(args.input);
+  read.required = {"bx", "by", "bz"};
+  for (const auto& a : options.terms.aux) read.required.push_back(a);
+  if (!args.segments.empty()) {
+    options.maneuvers = core::ReadSegmentsCsv(args.segments);
+    options.maneuvers_given = true;
+    options.maneuver_source = "segments file " + args.segments;
+  }
+  const io::Table table = io::ReadRecording(args.recording, read);
+  const core::FitResult fit = core::FitModel(table, options);
+
+  if (!args.summary_json.empty()) {
+    WriteJson(args.summary_json,
+              core::SummaryFromFit(fit, args.recording,
+                                   fit.usable ? args.model : "",
+                                   FLUXTRIM_VERSION));
+  }
+  if (!fit.usable) {
+    std::cerr << "fluxtrim fit: " << args.recording
+              << ": cannot fit a compensation model: " << fit.message << "\n";
+    for (const auto& w : fit.warnings) std::cerr << "  - " << w << "\n";
+    return 1;
+  }
+  core::FitProvenance provenance;
+  provenance.file = args.recording;
+  provenance.channel_map = read.rename;
+  provenance.tool_version = FLUXTRIM_VERSION;
+  io::WriteModelFile(args.model, core::ModelFromFit(fit, provenance));
+  // The summary goes to stdout unless the JSON does.
+  std::ostream& text = args.summary_json == "-" ? std::cerr : std::cout;
+  text << core::FormatFitSummary(fit, args.recording);
+  text << "  model written to " << args.model << "\n";
+  return 0;
+}
+
+}  // namespace
 
 void AddFitCommand(CLI::App& app, int* exit_code) {
-  AddPendingCommand(app, "fit", "Fit a Tolles-Lawson compensation model to a compensation flight", exit_code);
+  auto args = std::make_shared<FitArgs>();
+  CLI::App* sub = app.add_subcommand(
+      "fit",
+      "Fit a Tolles-Lawson compensation model to a compensation flight and "
+      "report the figure of merit");
+  sub->footer(
+      "Model: H = sum a_i c_i + Bt sum b_ij c_i c_j + Bt sum e_ij c_i c'_j "
+      "(+ aux terms), c = B/|B| in the body frame, Bt the total field. "
+      "Induced and eddy columns are multiplied by Bt: perm_* in nT, ind_* "
+      "dimensionless, eddy_* in seconds. The field (f, or |B| without a "
+      "scalar sensor) and every term are band-passed alike before the "
+      "least-squares fit (Ceres). Exit 1 when the recording cannot support "
+      "a fit (the message says what to fly or fix).");
+  sub->add_option("REC", args->recording,
+                  "Compensation flight (.csv, .dfn/.dat ASEG-GDF2, .ftrec)")
+      ->required();
+  sub->add_option("-o,--output", args->model, "Model file to write")->required();
+  sub->add_option("--terms", args->terms,
+                  "Term set: default (16), full (18, trace of the induced and "
+                  "eddy matrices fixed at 0), or groups such as "
+                  "permanent,induced")
+      ->capture_default_str();
+  sub->add_option("--aux", args->aux,
+                  "Extra channels as regressors c_i * channel "
+                  "(comma list, e.g. i_motor,i_servo)");
+  sub->add_option("--ridge", args->ridge,
+                  "Ridge weight per sample in equilibrated units (>= 0), or "
+                  "auto: generalised cross-validation")
+      ->capture_default_str();
+  sub->add_option("--loss", args->loss,
+                  "Robust loss against spikes: none, huber or cauchy (scale "
+                  "from the median absolute deviation)")
+      ->capture_default_str();
+  sub->add_option("--segments", args->segments,
+                  "Maneuver times from a CSV (start_s,end_s,heading_deg,kind) "
+                  "instead of detecting them");
+  sub->add_option("--band", args->band, "Band-pass edges LOW,HIGH (Hz)")
+      ->capture_default_str();
+  sub->add_option("--order", args->order, "Butterworth order (band-pass has "
+                                          "2*order poles)")
+      ->capture_default_str();
+  sub->add_option("--derivative-half-width", args->half_width,
+                  "Half-width k (samples) of the centred derivative of the "
+                  "direction cosines; default round(0.2 s * rate), >= 1");
+  sub->add_flag("--no-lag", args->no_lag,
+                "Do not estimate the lag of the scalar sensor");
+  sub->add_option("--max-lag", args->max_lag_s,
+                  "Largest lag searched (s; positive lag: the scalar sensor "
+                  "reads late)")
+      ->capture_default_str();
+  sub->add_flag("--no-cross-validation", args->no_cross_validation,
+                "Skip the leave-one-heading-out cross-validation");
+  sub->add_option("--summary-json", args->summary_json,
+                  "Write the summary as JSON to PATH ('-' for stdout)");
+  AddInputOptions(sub, &args->input);
+  sub->callback([args, exit_code] { *exit_code = RunFit(*args); });
 }
 
 }  // namespace fluxtrim::cli

@@ -1,5 +1,6 @@
 #include "src/core/least_squares.h"
 
+#include <algorithm>
 #include <cmath>
 #include <memory>
 #include <utility>
@@ -92,6 +93,30 @@ CompressedSystem Compress(const Eigen::Ref<const Eigen::MatrixXd>& a,
   qty.applyOnTheLeft(qr.householderQ().transpose());
   s.z = qty.head(p);
   s.outside_sum_squares = qty.tail(n - p).squaredNorm();
+  return s;
+}
+
+CompressedDesign::CompressedDesign(const Eigen::Ref<const Eigen::MatrixXd>& a)
+    : rows_(a.rows()), cols_(a.cols()) {
+  Eigen::HouseholderQR<Eigen::MatrixXd> qr(a);
+  qr_ = qr.matrixQR();
+  coefficients_ = qr.hCoeffs();
+}
+
+CompressedSystem CompressedDesign::Compress(
+    const Eigen::Ref<const Eigen::VectorXd>& y) const {
+  CompressedSystem s;
+  s.rows = rows_;
+  s.y_sum_squares = y.squaredNorm();
+  s.r = qr_.topRows(cols_).triangularView<Eigen::Upper>();
+  Eigen::VectorXd qty = y;
+  const auto householder =
+      Eigen::HouseholderSequence<Eigen::MatrixXd, Eigen::VectorXd>(
+          qr_, coefficients_)
+          .setLength(std::min(rows_, cols_));
+  qty.applyOnTheLeft(householder.transpose());
+  s.z = qty.head(cols_);
+  s.outside_sum_squares = qty.tail(rows_ - cols_).squaredNorm();
   return s;
 }
 

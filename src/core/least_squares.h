@@ -40,6 +40,21 @@ struct CompressedSystem {
 CompressedSystem Compress(const Eigen::Ref<const Eigen::MatrixXd>& a,
                           const Eigen::Ref<const Eigen::VectorXd>& y);
 
+// The QR factorisation of A kept for several right-hand sides (lag search,
+// robust iterations): each Compress(y) costs O(n p) instead of O(n p^2).
+class CompressedDesign {
+ public:
+  explicit CompressedDesign(const Eigen::Ref<const Eigen::MatrixXd>& a);
+  CompressedSystem Compress(const Eigen::Ref<const Eigen::VectorXd>& y) const;
+  long rows() const { return rows_; }
+  long cols() const { return cols_; }
+
+ private:
+  long rows_ = 0, cols_ = 0;
+  Eigen::MatrixXd qr_;          // Householder vectors below, R above
+  Eigen::VectorXd coefficients_;  // Householder coefficients
+};
+
 struct LeastSquaresOptions {
   // Per-term prior weights w_j (residual w_j x_j); empty means no prior.
   std::vector<double> prior_weights;

@@ -1,0 +1,1257 @@
+#include "src/core/fit.h"
+
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <memory>
+#include <numeric>
+#include <sstream>
+#include <stdexcept>
+
+#include <Eigen/Core>
+#include <Eigen/QR>
+#include <ceres/ceres.h>
+#include <ceres/cubic_interpolation.h>
+
+#include "io/error.h"
+#include "src/core/lag.h"
+#include "src/core/least_squares.h"
+#include "src/core/ridge.h"
+
+namespace fluxtrim::core {
+namespace {
+
+constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
+
+// Weight of the prior that holds an undetermined term at 0, relative to
+// sqrt(n) (the data's weight on a unit-RMS column): the term's posterior
+// moves at most 1e-6 of what the data alone would say.
+constexpr double kHoldWeight = 1e3;
+// Weight of the gauge constraints of the 18-term set, relative to sqrt(n).
+constexpr double kConstraintWeight = 1e3;
+
+// Plausible magnitude of each kind of coefficient (our judgement of the
+// physics, for aircraft, drones and vehicles; generous on purpose): a
+// permanent field beyond 20,000 nT at the sensor, an induced field beyond
+// 20% of the Earth's field, or an eddy time constant beyond 20 ms would be
+// a platform no compensation could fix. Aux terms: their contribution
+// beyond 20,000 nT.
+constexpr double kMaxPermanentNT = 20000.0;
+constexpr double kMaxInduced = 0.2;
+constexpr double kMaxEddyS = 0.02;
+// A term whose standard error exceeds this fraction of its plausible range
+// is not determined by the flight.
+constexpr double kUndeterminedFraction = 0.1;
+
+// Tuning constants for 95% efficiency under Gaussian noise (common
+// practice: Huber 1981; Holland & Welsch 1977) and the MAD-to-sigma factor
+// 1/Phi^{-1}(3/4) = 1.4826 for Gaussian data (common practice).
+constexpr double kHuberTuning = 1.345;
+constexpr double kCauchyTuning = 2.385;
+constexpr double kMadToSigma = 1.4826;
+
+double Median(std::vector<double> v) {
+  if (v.empty()) return kNaN;
+  const std::size_t m = v.size() / 2;
+  std::nth_element(v.begin(), v.begin() + static_cast<long>(m), v.end());
+  double med = v[m];
+  if (v.size() % 2 == 0) {
+    med = (med + *std::max_element(v.begin(), v.begin() + static_cast<long>(m))) / 2;
+  }
+  return med;
+}
+
+double CircularDistanceDeg(double a, double b) {
+  double d = std::fmod(std::fabs(a - b), 360.0);
+  return d > 180.0 ? 360.0 - d : d;
+}
+
+std::string Fixed(double v, int digits) {
+  char buffer[64];
+  std::snprintf(buffer, sizeof buffer, "%.*f", digits, v);
+  return buffer;
+}
+std::string Sci(double v) {
+  char buffer[64];
+  std::snprintf(buffer, sizeof buffer, "%.3g", v);
+  return buffer;
+}
+
+// A filtered run: derivative-valid samples [begin, end) of a contiguous run
+// of good samples; rows [fit_begin, fit_end) are fitted.
+struct Run {
+  std::size_t begin = 0, end = 0;
+  std::size_t fit_begin = 0, fit_end = 0;
+};
+
+// Everything the steps share.
+struct Work {
+  std::size_t n = 0, p = 0;
+  double rate = 0;
+  int k = 1;
+  std::vector<double> time;
+  models::TermMatrix tm;
+  std::vector<double> field;          // measured field (f or |B|), raw
+  bool scalar = false;                // field is the scalar sensor
+  std::vector<Run> runs;
+  std::vector<std::size_t> fit_rows;  // sample index of each fitted row
+  std::vector<int> fit_run;           // run of each fitted row
+  Eigen::MatrixXd a;                  // fitted rows x p, band-passed, equilibrated
+  Eigen::VectorXd scale;              // band RMS of each column
+  std::vector<bool> unexcited;
+  std::vector<std::vector<double>> constraints;  // equilibrated, unit norm
+  std::unique_ptr<BandPass> band;
+  double noise_gain = 1;
+  std::vector<double> bound;          // plausible |coefficient|, physical
+};
+
+// Band-passes x over each run; returns the full-length series (NaN outside
+// runs).
+std::vector<double> BandPassRuns(const Work& w, const std::vector<double>& x) {
+  std::vector<double> out(w.n, kNaN);
+  for (const Run& run : w.runs) {
+    w.band->Filter(x.data() + run.begin, run.end - run.begin,
+                   out.data() + run.begin);
+  }
+  return out;
+}
+
+Eigen::VectorXd AtFitRows(const Work& w, const std::vector<double>& full) {
+  Eigen::VectorXd y(static_cast<long>(w.fit_rows.size()));
+  for (std::size_t r = 0; r < w.fit_rows.size(); ++r) {
+    y(static_cast<long>(r)) = full[w.fit_rows[r]];
+  }
+  return y;
+}
+
+// Adds the gauge constraints as weighted pseudo-observations to a
+// compressed system (recompressing the (p + c) x p stack).
+CompressedSystem Augment(const CompressedSystem& s, const Work& w) {
+  if (w.constraints.empty()) return s;
+  const long p = s.r.cols();
+  const long c = static_cast<long>(w.constraints.size());
+  Eigen::MatrixXd stack = Eigen::MatrixXd::Zero(p + c, p);
+  stack.topRows(p) = s.r;
+  const double weight = kConstraintWeight * std::sqrt(static_cast<double>(s.rows));
+  for (long i = 0; i < c; ++i) {
+    for (long j = 0; j < p; ++j) stack(p + i, j) = weight * w.constraints[i][j];
+  }
+  Eigen::VectorXd rhs = Eigen::VectorXd::Zero(p + c);
+  rhs.head(p) = s.z;
+  Eigen::HouseholderQR<Eigen::MatrixXd> qr(stack);
+  CompressedSystem out;
+  out.rows = s.rows;
+  out.y_sum_squares = s.y_sum_squares;
+  out.r = qr.matrixQR().topRows(p).triangularView<Eigen::Upper>();
+  rhs.applyOnTheLeft(qr.householderQ().transpose());
+  out.z = rhs.head(p);
+  out.outside_sum_squares = s.outside_sum_squares + rhs.tail(c).squaredNorm();
+  return out;
+}
+
+std::vector<int> FreeColumns(const std::vector<bool>& held) {
+  std::vector<int> cols;
+  for (std::size_t j = 0; j < held.size(); ++j) {
+    if (!held[j]) cols.push_back(static_cast<int>(j));
+  }
+  return cols;
+}
+
+struct Solution {
+  bool ok = false;
+  std::string message;
+  Eigen::VectorXd x;           // equilibrated
+  Eigen::MatrixXd covariance;  // unscaled (J^T J)^{-1}, equilibrated
+  bool covariance_ok = false;
+  double rss = 0;              // band-passed residual sum of squares
+  double lambda = 0;
+  double dof = 0;              // effective number of fitted parameters
+  GcvResult gcv;
+};
+
+// Solves the (augmented) compressed system with the ridge on free terms and
+// the hold prior on held ones. lambda < 0 means: choose by GCV.
+Solution SolveWith(const Work& w, const CompressedSystem& augmented,
+                   const std::vector<bool>& held, double lambda,
+                   bool covariance) {
+  Solution s;
+  const double n = static_cast<double>(augmented.rows);
+  const std::vector<int> free = FreeColumns(held);
+  if (free.empty()) {
+    s.message = "no term left to fit";
+    return s;
+  }
+  const CompressedSystem sub = SubSystem(augmented, free);
+  if (lambda < 0) {
+    GcvOptions gcv;
+    gcv.effective_rows = n * w.noise_gain;
+    s.gcv = ChooseRidgeByGcv(sub, gcv);
+    lambda = s.gcv.lambda;
+  }
+  s.lambda = lambda;
+  LeastSquaresOptions options;
+  options.prior_weights.assign(w.p, std::sqrt(n * lambda));
+  for (std::size_t j = 0; j < w.p; ++j) {
+    if (held[j]) options.prior_weights[j] = kHoldWeight * std::sqrt(n);
+  }
+  options.compute_covariance = covariance;
+  const LeastSquaresSummary ls = SolveLeastSquares(augmented, options);
+  s.message = ls.message;
+  if (!ls.usable) return s;
+  s.x = ls.x;
+  s.covariance = ls.covariance;
+  s.covariance_ok = ls.covariance_ok;
+  s.rss = ls.data_sum_squares;
+  // Effective parameters: filter factors of the free terms' directions.
+  const SvdAnalysis svd = AnalyseSystem(sub);
+  for (long i = 0; i < svd.singular_values.size(); ++i) {
+    const double s2 = svd.singular_values(i) * svd.singular_values(i);
+    s.dof += s2 / (s2 + lambda);
+  }
+  s.ok = true;
+  return s;
+}
+
+// White-noise variance behind a band-passed residual: the band-pass makes
+// residuals correlated; sigma_w^2 = sigma_band^2 / sum g_k^2 makes
+// sigma_w^2 (A^T A)^{-1} the coefficient covariance when the columns' band
+// spectra are flat (see fit.h step 6).
+double WhiteVariance(const Work& w, const Solution& s) {
+  const double n = static_cast<double>(w.fit_rows.size());
+  const double band_var = s.rss / std::max(1.0, n - s.dof);
+  return band_var / w.noise_gain;
+}
+
+// ----- lag ------------------------------------------------------------
+
+// Band-passed field of every run, interpolated at (position + shift).
+class RunInterpolators {
+ public:
+  RunInterpolators(const Work& w, const std::vector<double>& band_full) {
+    for (const Run& run : w.runs) {
+      grids_.push_back(std::make_unique<ceres::Grid1D<double>>(
+          band_full.data() + run.begin, 0,
+          static_cast<int>(run.end - run.begin)));
+      interpolators_.push_back(
+          std::make_unique<ceres::CubicInterpolator<ceres::Grid1D<double>>>(
+              *grids_.back()));
+    }
+  }
+  void Evaluate(int run, double position, double* f, double* dfdx) const {
+    interpolators_[static_cast<std::size_t>(run)]->Evaluate(position, f, dfdx);
+  }
+
+ private:
+  std::vector<std::unique_ptr<ceres::Grid1D<double>>> grids_;
+  std::vector<std::unique_ptr<ceres::CubicInterpolator<ceres::Grid1D<double>>>>
+      interpolators_;
+};
+
+// Rows used by the lag steps: every stride-th fitted row.
+struct LagRows {
+  std::vector<long> rows;    // into w.fit_rows / w.a
+  std::vector<int> run;
+  std::vector<double> position;  // sample position within its run
+};
+
+LagRows MakeLagRows(const Work& w, std::size_t stride) {
+  LagRows out;
+  for (std::size_t r = 0; r < w.fit_rows.size(); r += stride) {
+    const int run = w.fit_run[r];
+    out.rows.push_back(static_cast<long>(r));
+    out.run.push_back(run);
+    out.position.push_back(static_cast<double>(
+        w.fit_rows[r] - w.runs[static_cast<std::size_t>(run)].begin));
+  }
+  return out;
+}
+
+// Joint residuals A_e x - y(position + lag) over the lag rows; parameters x
+// (p, equilibrated) and lag (samples).
+class JointLagCost : public ceres::CostFunction {
+ public:
+  JointLagCost(const Eigen::MatrixXd* a, const LagRows* rows,
+               const RunInterpolators* y)
+      : a_(a), rows_(rows), y_(y) {
+    set_num_residuals(static_cast<int>(rows->rows.size()));
+    mutable_parameter_block_sizes()->push_back(static_cast<int>(a->cols()));
+    mutable_parameter_block_sizes()->push_back(1);
+  }
+  bool Evaluate(double const* const* parameters, double* residuals,
+                double** jacobians) const override {
+    const long p = a_->cols();
+    Eigen::Map<const Eigen::VectorXd> x(parameters[0], p);
+    const double lag = parameters[1][0];
+    const std::size_t m = rows_->rows.size();
+    for (std::size_t i = 0; i < m; ++i) {
+      const long r = rows_->rows[i];
+      double f = 0, dfdx = 0;
+      y_->Evaluate(rows_->run[i], rows_->position[i] + lag, &f, &dfdx);
+      residuals[i] = a_->row(r).dot(x) - f;
+      if (jacobians) {
+        if (jacobians[0]) {
+          for (long j = 0; j < p; ++j) {
+            jacobians[0][static_cast<long>(i) * p + j] = (*a_)(r, j);
+          }
+        }
+        if (jacobians[1]) jacobians[1][i] = -dfdx;
+      }
+    }
+    return true;
+  }
+
+ private:
+  const Eigen::MatrixXd* a_;
+  const LagRows* rows_;
+  const RunInterpolators* y_;
+};
+
+class PriorCost : public ceres::CostFunction {
+ public:
+  explicit PriorCost(Eigen::MatrixXd g) : g_(std::move(g)) {
+    set_num_residuals(static_cast<int>(g_.rows()));
+    mutable_parameter_block_sizes()->push_back(static_cast<int>(g_.cols()));
+  }
+  bool Evaluate(double const* const* parameters, double* residuals,
+                double** jacobians) const override {
+    Eigen::Map<const Eigen::VectorXd> x(parameters[0], g_.cols());
+    Eigen::Map<Eigen::VectorXd>(residuals, g_.rows()) = g_ * x;
+    if (jacobians && jacobians[0]) {
+      Eigen::Map<Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic,
+                               Eigen::RowMajor>>(jacobians[0], g_.rows(),
+                                                 g_.cols()) = g_;
+    }
+    return true;
+  }
+
+ private:
+  Eigen::MatrixXd g_;
+};
+
+struct LagResult {
+  double lag_samples = 0;
+  double std_error_samples = 0;
+  bool at_limit = false;
+  bool ok = false;
+};
+
+// Coarse grid then joint Ceres refinement (see fit.h step 4).
+LagResult EstimateLag(const Work& w, const std::vector<double>& band_full,
+                      const std::vector<bool>& held, double lambda,
+                      double max_lag_samples) {
+  LagResult out;
+  const RunInterpolators y(w, band_full);
+  const long p = static_cast<long>(w.p);
+  // Coarse: rows decimated to about 5 Hz (the band ends at ~1 Hz, so the
+  // residual as a function of lag is smooth on that scale), a grid step of
+  // 0.05 s, and the residual of the projection on the free columns.
+  const std::size_t stride =
+      std::max<std::size_t>(1, static_cast<std::size_t>(w.rate / 5.0));
+  const LagRows coarse = MakeLagRows(w, stride);
+  const std::vector<int> free = FreeColumns(held);
+  const long m = static_cast<long>(coarse.rows.size());
+  if (m <= static_cast<long>(free.size()) + 2 || free.empty()) return out;
+  Eigen::MatrixXd ad(m, static_cast<long>(free.size()));
+  for (long i = 0; i < m; ++i) {
+    for (std::size_t j = 0; j < free.size(); ++j) {
+      ad(i, static_cast<long>(j)) = w.a(coarse.rows[static_cast<std::size_t>(i)], free[j]);
+    }
+  }
+  const CompressedDesign design(ad);
+  const double step = std::max(1e-3, 0.05 * w.rate);
+  const int half = static_cast<int>(std::ceil(max_lag_samples / step));
+  double best_rss = std::numeric_limits<double>::infinity();
+  int best = 0;
+  Eigen::VectorXd yl(m);
+  for (int g = -half; g <= half; ++g) {
+    const double lag = std::clamp(g * step, -max_lag_samples, max_lag_samples);
+    for (long i = 0; i < m; ++i) {
+      const std::size_t u = static_cast<std::size_t>(i);
+      y.Evaluate(coarse.run[u], coarse.position[u] + lag, &yl(i), nullptr);
+    }
+    const CompressedSystem s = design.Compress(yl);
+    const double rss = s.outside_sum_squares;
+    if (rss < best_rss) {
+      best_rss = rss;
+      best = g;
+    }
+  }
+  double lag0 = std::clamp(best * step, -max_lag_samples, max_lag_samples);
+
+  // Joint refinement of coefficients and lag in Ceres over at most 200,000
+  // rows.
+  const std::size_t refine_stride = std::max<std::size_t>(
+      1, (w.fit_rows.size() + 199999) / 200000);
+  const LagRows rows = MakeLagRows(w, refine_stride);
+  Eigen::VectorXd x = Eigen::VectorXd::Zero(p);
+  double lag = lag0;
+  ceres::Problem problem;
+  problem.AddResidualBlock(new JointLagCost(&w.a, &rows, &y), nullptr,
+                           x.data(), &lag);
+  const double n = static_cast<double>(rows.rows.size());
+  {
+    const long c = static_cast<long>(w.constraints.size());
+    Eigen::MatrixXd g = Eigen::MatrixXd::Zero(p + c, p);
+    for (long j = 0; j < p; ++j) {
+      g(j, j) = held[static_cast<std::size_t>(j)] ? kHoldWeight * std::sqrt(n)
+                                                  : std::sqrt(n * lambda);
+    }
+    for (long i = 0; i < c; ++i) {
+      for (long j = 0; j < p; ++j) {
+        g(p + i, j) = kConstraintWeight * std::sqrt(n) *
+                      w.constraints[static_cast<std::size_t>(i)][static_cast<std::size_t>(j)];
+      }
+    }
+    problem.AddResidualBlock(new PriorCost(std::move(g)), nullptr, x.data());
+  }
+  problem.SetParameterLowerBound(&lag, 0, -max_lag_samples - 1);
+  problem.SetParameterUpperBound(&lag, 0, max_lag_samples + 1);
+  ceres::Solver::Options options;
+  options.linear_solver_type = ceres::DENSE_QR;
+  options.max_num_iterations = 50;
+  options.function_tolerance = 1e-12;
+  options.parameter_tolerance = 1e-10;
+  options.logging_type = ceres::SILENT;
+  options.num_threads = 1;
+  ceres::Solver::Summary summary;
+  ceres::Solve(options, &problem, &summary);
+  if (!summary.IsSolutionUsable() || !std::isfinite(lag)) {
+    out.lag_samples = lag0;
+    out.ok = true;
+    out.at_limit = std::fabs(lag0) >= max_lag_samples - 1e-9;
+    return out;
+  }
+  out.lag_samples = lag;
+  out.at_limit = std::fabs(lag) >= max_lag_samples - 0.5 * step;
+  out.ok = true;
+  // Standard error: covariance of the joint problem scaled by the residual
+  // variance; rows are every refine_stride-th sample, whose band-passed
+  // residuals are correlated over about 1/noise_gain samples.
+  ceres::Covariance::Options cov_options;
+  cov_options.algorithm_type = ceres::DENSE_SVD;
+  cov_options.null_space_rank = -1;
+  ceres::Covariance covariance(cov_options);
+  std::vector<std::pair<const double*, const double*>> blocks = {{&lag, &lag}};
+  if (covariance.Compute(blocks, &problem)) {
+    double var = 0;
+    if (covariance.GetCovarianceBlock(&lag, &lag, &var)) {
+      double rss = 2.0 * summary.final_cost;
+      const double band_var = rss / std::max(1.0, n - static_cast<double>(p) - 1);
+      const double correlation =
+          std::max(1.0, 1.0 / (w.noise_gain * static_cast<double>(refine_stride)));
+      out.std_error_samples = std::sqrt(std::max(0.0, var * band_var * correlation));
+    }
+  }
+  return out;
+}
+
+// ----- robust loss --------------------------------------------------------
+
+// Running median of x over an odd window within each run (runs shorter
+// than the window use their own median).
+std::vector<double> RunningMedian(const Work& w, const std::vector<double>& x,
+                                  std::size_t window) {
+  std::vector<double> out(w.n, kNaN);
+  std::vector<double> buffer;
+  const std::size_t half = window / 2;
+  for (const Run& run : w.runs) {
+    for (std::size_t i = run.begin; i < run.end; ++i) {
+      const std::size_t b = i >= run.begin + half ? i - half : run.begin;
+      const std::size_t e = std::min(run.end, i + half + 1);
+      buffer.assign(x.begin() + static_cast<long>(b), x.begin() + static_cast<long>(e));
+      const std::size_t m = buffer.size() / 2;
+      std::nth_element(buffer.begin(), buffer.begin() + static_cast<long>(m), buffer.end());
+      out[i] = buffer[m];
+    }
+  }
+  return out;
+}
+
+// ----- helpers ------------------------------------------------------------
+
+double PlausibleBound(const std::string& name, const Work& w,
+                      const std::vector<double>& aux_rms, std::size_t j,
+                      std::size_t aux_first) {
+  if (name.rfind("perm_", 0) == 0) return kMaxPermanentNT;
+  if (name.rfind("ind_", 0) == 0) return kMaxInduced;
+  if (name.rfind("eddy_", 0) == 0) return kMaxEddyS;
+  const std::size_t a = (j - aux_first) / 3;
+  const double rms = a < aux_rms.size() ? aux_rms[a] : 0.0;
+  (void)w;
+  return rms > 0 ? kMaxPermanentNT / rms : std::numeric_limits<double>::infinity();
+}
+
+std::string HoldHint(const std::string& name) {
+  if (name.rfind("aux_", 0) == 0) {
+    return "vary the channel during the maneuvers";
+  }
+  return "fly pitch, roll and yaw maneuvers at each heading";
+}
+
+struct HeadingGroup {
+  double heading_deg = 0;
+  std::vector<std::size_t> maneuvers;
+};
+
+std::vector<HeadingGroup> GroupByHeading(const std::vector<Maneuver>& m) {
+  std::vector<HeadingGroup> groups;
+  for (std::size_t i = 0; i < m.size(); ++i) {
+    bool placed = false;
+    for (HeadingGroup& g : groups) {
+      if (CircularDistanceDeg(g.heading_deg, m[i].heading_deg) <= 30.0) {
+        g.maneuvers.push_back(i);
+        placed = true;
+        break;
+      }
+    }
+    if (!placed) groups.push_back({m[i].heading_deg, {i}});
+  }
+  return groups;
+}
+
+}  // namespace
+
+const char* RobustLossName(RobustLoss loss) {
+  switch (loss) {
+    case RobustLoss::kHuber:
+      return "huber";
+    case RobustLoss::kCauchy:
+      return "cauchy";
+    case RobustLoss::kNone:
+      break;
+  }
+  return "none";
+}
+
+bool ParseRobustLoss(const std::string& text, RobustLoss* loss) {
+  if (text == "none") {
+    *loss = RobustLoss::kNone;
+  } else if (text == "huber") {
+    *loss = RobustLoss::kHuber;
+  } else if (text == "cauchy") {
+    *loss = RobustLoss::kCauchy;
+  } else {
+    return false;
+  }
+  return true;
+}
+
+bool FitOptions::IsValid(std::string* error) const {
+  auto fail = [error](const std::string& what) {
+    if (error) *error = what;
+    return false;
+  };
+  if (!band.IsValid(error)) return false;
+  if (derivative_half_width < 0) {
+    return fail("derivative half-width must be >= 1 samples (0 = automatic)");
+  }
+  if (!(gap_factor >= 1.0) || !std::isfinite(gap_factor)) {
+    return fail("gap factor must be >= 1");
+  }
+  if (!ridge_auto && (!(ridge >= 0) || !std::isfinite(ridge))) {
+    return fail("ridge must be 'auto' or a number >= 0");
+  }
+  if (!(max_lag_s >= 0) || !std::isfinite(max_lag_s)) {
+    return fail("maximum lag must be >= 0 s");
+  }
+  if (!(edge_trim_s >= 0) || !std::isfinite(edge_trim_s)) {
+    return fail("edge trim must be >= 0 s");
+  }
+  if (!(max_flagged_fraction >= 0 && max_flagged_fraction <= 1)) {
+    return fail("maximum flagged fraction must be within [0, 1]");
+  }
+  if (models::TermCount(terms) == 0) return fail("the term set is empty");
+  return true;
+}
+
+int DefaultDerivativeHalfWidth(double sample_rate_hz) {
+  return std::max(1, static_cast<int>(std::lround(0.2 * sample_rate_hz)));
+}
+
+double EstimateSampleRate(const std::vector<double>& time,
+                          const std::string& source) {
+  std::vector<double> steps;
+  steps.reserve(time.size());
+  for (std::size_t i = 1; i < time.size(); ++i) {
+    const double dt = time[i] - time[i - 1];
+    if (std::isfinite(dt) && dt > 0) steps.push_back(dt);
+  }
+  if (steps.size() < 2) {
+    throw io::InputError(source, "channel time",
+                         "expected increasing times with at least three "
+                         "samples to find the sample rate");
+  }
+  return 1.0 / Median(std::move(steps));
+}
+
+std::string TermUnit(const std::string& name) {
+  if (name.rfind("perm_", 0) == 0) return "nT";
+  if (name.rfind("ind_", 0) == 0) return "1";
+  if (name.rfind("eddy_", 0) == 0) return "s";
+  return "nT/unit";
+}
+
+FitResult FitModel(const io::Table& table, const FitOptions& options) {
+  std::string error;
+  if (!options.IsValid(&error)) throw std::invalid_argument(error);
+  FitResult result;
+  Work w;
+
+  // ---- channels --------------------------------------------------------
+  std::vector<std::string> missing;
+  for (const char* name : {"time", "bx", "by", "bz"}) {
+    if (!table.Has(name)) missing.push_back(name);
+  }
+  for (const std::string& aux : options.terms.aux) {
+    if (!table.Has(aux)) missing.push_back(aux);
+  }
+  if (!missing.empty()) {
+    std::string have;
+    for (const auto& c : table.channels()) have += (have.empty() ? "" : ", ") + c.info.name;
+    std::string names;
+    for (const auto& m : missing) names += (names.empty() ? "" : ", ") + m;
+    throw io::InputError(options.source, "channel " + names,
+                         "missing; the fit needs time, bx, by, bz (and every "
+                         "--aux channel); the recording has: " + have);
+  }
+  w.n = table.rows();
+  w.time = table.Column("time");
+  const auto& bx = table.Column("bx");
+  const auto& by = table.Column("by");
+  const auto& bz = table.Column("bz");
+  const double* f = nullptr;
+  if (table.Has("f")) {
+    const auto& fc = table.Column("f");
+    if (std::any_of(fc.begin(), fc.end(), [](double v) { return std::isfinite(v); })) {
+      f = fc.data();
+    } else {
+      result.warnings.push_back(
+          "channel f holds no finite value: the fluxgate magnitude |B| is used "
+          "as the total field");
+    }
+  }
+  w.scalar = f != nullptr;
+  result.field_source = w.scalar ? "f" : "|B|";
+  std::vector<const double*> aux;
+  std::vector<double> aux_rms;
+  for (const std::string& name : options.terms.aux) {
+    const auto& col = table.Column(name);
+    aux.push_back(col.data());
+    double s = 0;
+    std::size_t c = 0;
+    for (double v : col) {
+      if (std::isfinite(v)) {
+        s += v * v;
+        ++c;
+      }
+    }
+    aux_rms.push_back(c ? std::sqrt(s / static_cast<double>(c)) : 0.0);
+  }
+  result.samples = w.n;
+  result.time = w.time;
+  if (w.n > 0) {
+    result.start_s = w.time.front();
+    result.end_s = w.time.back();
+  }
+
+  w.rate = EstimateSampleRate(w.time, options.source);
+  w.k = options.derivative_half_width > 0
+            ? options.derivative_half_width
+            : DefaultDerivativeHalfWidth(w.rate);
+  result.engine.terms = options.terms;
+  result.engine.half_width = w.k;
+  result.engine.sample_rate_hz = w.rate;
+  result.engine.gap_factor = options.gap_factor;
+  result.term_names = models::TermNames(options.terms);
+  w.p = result.term_names.size();
+  result.loss = RobustLossName(options.loss);
+
+  w.band = std::make_unique<BandPass>(options.band, w.rate);
+  result.band = options.band;
+  result.band.high_hz = w.band->high_hz();
+  if (w.band->clipped()) {
+    result.warnings.push_back("band-pass upper edge clipped to " +
+                              Fixed(w.band->high_hz(), 3) +
+                              " Hz (below the Nyquist frequency of " +
+                              Fixed(w.rate / 2, 3) + " Hz)");
+  }
+  // Noise gain sum g_k^2 of the zero-phase filter: filter a unit impulse.
+  {
+    const std::size_t len = std::max<std::size_t>(
+        w.band->min_length() + 1,
+        static_cast<std::size_t>(40.0 * w.rate / w.band->low_hz()));
+    std::vector<double> impulse(len, 0.0);
+    impulse[len / 2] = 1.0;
+    const std::vector<double> g = w.band->Filter(impulse);
+    double s = 0;
+    for (double v : g) s += v * v;
+    w.noise_gain = s > 0 ? s : 1.0;
+    result.noise_gain = w.noise_gain;
+  }
+
+  // ---- attitude range --------------------------------------------------
+  if (table.Has("roll") && table.Has("pitch")) {
+    const auto& roll = table.Column("roll");
+    const auto& pitch = table.Column("pitch");
+    double rmin = INFINITY, rmax = -INFINITY, pmin = INFINITY, pmax = -INFINITY;
+    for (std::size_t i = 0; i < w.n; ++i) {
+      if (std::isfinite(roll[i])) {
+        rmin = std::min(rmin, roll[i]);
+        rmax = std::max(rmax, roll[i]);
+      }
+      if (std::isfinite(pitch[i])) {
+        pmin = std::min(pmin, pitch[i]);
+        pmax = std::max(pmax, pitch[i]);
+      }
+    }
+    if (std::isfinite(rmin) && std::isfinite(pmin)) {
+      result.attitude_present = true;
+      result.roll_min_deg = rmin;
+      result.roll_max_deg = rmax;
+      result.pitch_min_deg = pmin;
+      result.pitch_max_deg = pmax;
+    }
+  }
+
+  // ---- terms -------------------------------------------------------------
+  w.tm = models::BuildTermMatrix(result.engine, w.n, w.time.data(), bx.data(),
+                                 by.data(), bz.data(), f, aux);
+  w.field.resize(w.n);
+  for (std::size_t i = 0; i < w.n; ++i) w.field[i] = w.scalar ? f[i] : w.tm.bt[i];
+
+  // ---- segments ------------------------------------------------------------
+  std::vector<char> good(w.n, 0);
+  std::size_t bad = 0;
+  for (std::size_t i = 0; i < w.n; ++i) {
+    bool ok = !(w.tm.flags[i] & models::kFlagBadSample) && std::isfinite(w.field[i]);
+    for (const double* a : aux) ok = ok && std::isfinite(a[i]);
+    good[i] = ok ? 1 : 0;
+    if (!ok) ++bad;
+  }
+  // Samples the nominal rate would have had inside time gaps.
+  std::size_t missing_in_gaps = 0;
+  for (std::size_t i = 1; i < w.n; ++i) {
+    const double dt = w.time[i] - w.time[i - 1];
+    if (std::isfinite(dt) && dt > options.gap_factor / w.rate) {
+      missing_in_gaps += static_cast<std::size_t>(std::lround(dt * w.rate)) - 1;
+    }
+  }
+  const double flagged_fraction =
+      static_cast<double>(bad + missing_in_gaps) /
+      static_cast<double>(std::max<std::size_t>(1, w.n + missing_in_gaps));
+  if (flagged_fraction > options.max_flagged_fraction) {
+    result.message =
+        Fixed(100 * flagged_fraction, 1) +
+        "% of the samples are missing, in gaps or non-finite (limit " +
+        Fixed(100 * options.max_flagged_fraction, 0) +
+        "%): repair the recording (check the logger and the sensor "
+        "connections) or fly the compensation box again";
+    return result;
+  }
+
+  const double max_lag_s = (w.scalar && options.estimate_lag) ? options.max_lag_s : 0.0;
+  const double trim_s = options.edge_trim_s > 0
+                            ? options.edge_trim_s
+                            : std::max(0.5 / w.band->low_hz(),
+                                       max_lag_s + 2.0 / w.rate);
+  const std::size_t trim = static_cast<std::size_t>(std::ceil(trim_s * w.rate));
+  std::size_t skipped_runs = 0;
+  {
+    std::vector<double> good_time(w.n), good_field(w.n);
+    for (std::size_t i = 0; i < w.n; ++i) {
+      good_time[i] = good[i] ? w.time[i] : kNaN;
+      good_field[i] = good[i] ? w.field[i] : kNaN;
+    }
+    const std::size_t k = static_cast<std::size_t>(w.k);
+    for (const SampleRun& r :
+         ContiguousRuns(good_time, good_field, w.rate, options.gap_factor)) {
+      if (r.end - r.begin <= 2 * k) {
+        ++skipped_runs;
+        continue;
+      }
+      Run run;
+      run.begin = r.begin + k;
+      run.end = r.end - k;
+      const std::size_t len = run.end - run.begin;
+      if (len < w.band->min_length() || len <= 2 * trim + 1) {
+        ++skipped_runs;
+        continue;
+      }
+      run.fit_begin = run.begin + trim;
+      run.fit_end = run.end - trim;
+      w.runs.push_back(run);
+    }
+  }
+  if (skipped_runs > 0) {
+    result.warnings.push_back(
+        std::to_string(skipped_runs) +
+        " stretch(es) between gaps too short to band-pass were skipped");
+  }
+  for (std::size_t r = 0; r < w.runs.size(); ++r) {
+    for (std::size_t i = w.runs[r].fit_begin; i < w.runs[r].fit_end; ++i) {
+      w.fit_rows.push_back(i);
+      w.fit_run.push_back(static_cast<int>(r));
+    }
+  }
+  const std::size_t n_fit = w.fit_rows.size();
+  const double min_duration_s = 5.0 / w.band->low_hz();
+  const std::size_t min_rows = std::max<std::size_t>(
+      20 * w.p, static_cast<std::size_t>(min_duration_s * w.rate));
+  if (n_fit < min_rows) {
+    result.message =
+        "only " + Fixed(static_cast<double>(n_fit) / w.rate, 1) +
+        " s of usable data after filtering (need at least " +
+        Fixed(static_cast<double>(min_rows) / w.rate, 1) +
+        " s, about five periods of the band's lower edge): fly a longer "
+        "compensation box or repair the gaps";
+    return result;
+  }
+  result.samples_used = n_fit;
+
+  // ---- maneuvers -------------------------------------------------------
+  std::vector<Maneuver> maneuvers;
+  if (options.maneuvers_given) {
+    maneuvers = options.maneuvers;
+    result.maneuver_source =
+        options.maneuver_source.empty() ? "given" : options.maneuver_source;
+  } else {
+    const ManeuverDetection detection = DetectManeuvers(table);
+    maneuvers = detection.maneuvers;
+    result.maneuver_source = detection.source;
+  }
+  if (maneuvers.empty()) {
+    result.message =
+        "no pitch, roll or yaw maneuvers found (maneuver source: " +
+        result.maneuver_source +
+        "): fly the compensation box (pitch, roll and yaw at four headings) "
+        "or give the maneuver times with --segments FILE";
+    return result;
+  }
+  if (maneuvers.size() < 12) {
+    result.warnings.push_back("found " + std::to_string(maneuvers.size()) +
+                              " of the 12 maneuvers of a full box "
+                              "(pitch, roll, yaw at four headings)");
+  }
+
+  // ---- band-passed, equilibrated design ------------------------------------
+  {
+    const long p = static_cast<long>(w.p);
+    w.a.resize(static_cast<long>(n_fit), p);
+    std::vector<double> column(w.n), filtered;
+    for (long j = 0; j < p; ++j) {
+      for (const Run& run : w.runs) {
+        for (std::size_t i = run.begin; i < run.end; ++i) {
+          column[i] = w.tm.values[i * w.p + static_cast<std::size_t>(j)];
+        }
+      }
+      long row = 0;
+      for (const Run& run : w.runs) {
+        filtered.resize(run.end - run.begin);
+        w.band->Filter(column.data() + run.begin, run.end - run.begin,
+                       filtered.data());
+        for (std::size_t i = run.fit_begin; i < run.fit_end; ++i) {
+          w.a(row++, j) = filtered[i - run.begin];
+        }
+      }
+    }
+    w.scale.resize(p);
+    w.unexcited.assign(w.p, false);
+    for (long j = 0; j < p; ++j) {
+      const double band_rms = w.a.col(j).norm() / std::sqrt(static_cast<double>(n_fit));
+      double raw = 0;
+      for (std::size_t r : w.fit_rows) {
+        const double v = w.tm.values[r * w.p + static_cast<std::size_t>(j)];
+        raw += v * v;
+      }
+      raw = std::sqrt(raw / static_cast<double>(n_fit));
+      if (!(band_rms > 1e-12 * std::max(1.0, raw)) || !std::isfinite(band_rms)) {
+        w.unexcited[static_cast<std::size_t>(j)] = true;
+        w.scale(j) = 1.0;
+        w.a.col(j).setZero();
+      } else {
+        w.scale(j) = band_rms;
+        w.a.col(j) /= band_rms;
+      }
+    }
+  }
+  // Gauge of the 18-term set: sum c_i^2 = 1 and sum c_i c'_i = 0 leave the
+  // trace of the induced and eddy matrices undetermined (the first would
+  // only rescale the total field itself), so it is fixed at zero.
+  if (options.terms.full) {
+    for (const char* group : {"ind_", "eddy_"}) {
+      std::vector<double> g(w.p, 0.0);
+      double norm = 0;
+      for (std::size_t j = 0; j < w.p; ++j) {
+        const std::string& name = result.term_names[j];
+        if (name.rfind(group, 0) == 0 && name.size() == std::string(group).size() + 2 &&
+            name[name.size() - 1] == name[name.size() - 2]) {
+          g[j] = 1.0 / w.scale(static_cast<long>(j));
+          norm += g[j] * g[j];
+        }
+      }
+      if (norm > 0) {
+        for (double& v : g) v /= std::sqrt(norm);
+        w.constraints.push_back(g);
+      }
+    }
+  }
+  w.bound.resize(w.p);
+  const std::size_t aux_first = w.p - 3 * options.terms.aux.size();
+  for (std::size_t j = 0; j < w.p; ++j) {
+    w.bound[j] = PlausibleBound(result.term_names[j], w, aux_rms, j, aux_first);
+  }
+
+  std::vector<bool> held = w.unexcited;
+  std::vector<std::string> notes(w.p);
+  for (std::size_t j = 0; j < w.p; ++j) {
+    if (held[j]) notes[j] = "no variation in the band (not excited)";
+  }
+
+  const CompressedDesign design(w.a);
+  std::vector<double> field_aligned = w.field;
+  std::vector<double> band_full = BandPassRuns(w, field_aligned);
+  Eigen::VectorXd y = AtFitRows(w, band_full);
+
+  // Condition number of the equilibrated matrix over its excited columns.
+  {
+    const CompressedSystem s = Augment(design.Compress(y), w);
+    const SvdAnalysis svd = AnalyseSystem(SubSystem(s, FreeColumns(held)));
+    result.condition_number = svd.condition_number;
+  }
+
+  const double fixed_lambda = options.ridge_auto ? -1.0 : options.ridge;
+  result.ridge_method = options.ridge_auto ? "gcv" : "fixed";
+
+  // Determination: hold null directions, undetermined or implausible terms
+  // one at a time (the worst first) until every free term is determined.
+  auto determine = [&](const CompressedSystem& augmented, Solution* final_solution) {
+    for (std::size_t round = 0; round <= w.p; ++round) {
+      const std::vector<int> free = FreeColumns(held);
+      if (free.empty()) break;
+      const CompressedSystem sub = SubSystem(augmented, free);
+      const SvdAnalysis svd = AnalyseSystem(sub);
+      const long q = svd.singular_values.size();
+      const double s0 = svd.singular_values(0);
+      if (q > 0 && !(svd.singular_values(q - 1) > kNullSingularValue * s0)) {
+        // Hold the term loading most on the null direction (ties: the later
+        // term, so that `full` gives up ind_zz / eddy_zz first).
+        const Eigen::VectorXd v = svd.v.col(q - 1).cwiseAbs();
+        const double vmax = v.maxCoeff();
+        long pick = 0;
+        for (long i = 0; i < q; ++i) {
+          if (v(i) >= 0.5 * vmax) pick = i;
+        }
+        const std::size_t j = static_cast<std::size_t>(free[static_cast<std::size_t>(pick)]);
+        held[j] = true;
+        notes[j] = "no independent excitation (relative singular value " +
+                   Sci(svd.singular_values(q - 1) / s0) + ")";
+        continue;
+      }
+      Solution s = SolveWith(w, augmented, held, fixed_lambda, true);
+      if (!s.ok) {
+        *final_solution = s;
+        return;
+      }
+      // Standard errors from the data alone (no ridge), physical units.
+      const double sigma2 = WhiteVariance(w, s);
+      Eigen::MatrixXd rinv = Eigen::MatrixXd::Identity(q, q);
+      sub.r.triangularView<Eigen::Upper>().solveInPlace(rinv);
+      double worst = 1.0;
+      long worst_j = -1;
+      std::string worst_note;
+      for (long i = 0; i < q; ++i) {
+        const std::size_t j = static_cast<std::size_t>(free[static_cast<std::size_t>(i)]);
+        const double sc = w.scale(static_cast<long>(j));
+        const double se = std::sqrt(sigma2 * rinv.row(i).squaredNorm()) / sc;
+        const double value = s.x(static_cast<long>(j)) / sc;
+        const double bound = w.bound[j];
+        const double r_value = std::fabs(value) / bound;
+        const double r_se = se / (kUndeterminedFraction * bound);
+        if (std::isfinite(r_value) && r_value > worst) {
+          worst = r_value;
+          worst_j = static_cast<long>(j);
+          worst_note = "implausible value " + Sci(value) + " " +
+                       TermUnit(result.term_names[j]) + " (plausible within +-" +
+                       Sci(bound) + ")";
+        }
+        if (std::isfinite(r_se) && r_se > worst) {
+          worst = r_se;
+          worst_j = static_cast<long>(j);
+          worst_note = "standard error " + Sci(se) + " " +
+                       TermUnit(result.term_names[j]) + " exceeds " +
+                       Sci(kUndeterminedFraction * bound);
+        }
+      }
+      if (worst_j < 0) {
+        *final_solution = s;
+        return;
+      }
+      held[static_cast<std::size_t>(worst_j)] = true;
+      notes[static_cast<std::size_t>(worst_j)] = worst_note;
+    }
+    *final_solution = SolveWith(w, augmented, held, fixed_lambda, true);
+  };
+
+  Solution solution;
+  determine(Augment(design.Compress(y), w), &solution);
+  if (!solution.ok) {
+    result.message = "the least-squares solve failed: " + solution.message;
+    return result;
+  }
+
+  // ---- lag -----------------------------------------------------------------
+  if (w.scalar && options.estimate_lag && options.max_lag_s > 0) {
+    const LagResult lag = EstimateLag(w, band_full, held, solution.lambda,
+                                      options.max_lag_s * w.rate);
+    if (lag.ok) {
+      result.lag_estimated = true;
+      result.lag_s = lag.lag_samples / w.rate;
+      result.lag_std_error_s = lag.std_error_samples / w.rate;
+      if (lag.at_limit) {
+        result.warnings.push_back(
+            "the lag estimate " + Fixed(result.lag_s, 3) +
+            " s lies at the search limit: check the time stamps of the "
+            "scalar sensor or raise --max-lag");
+      }
+      field_aligned = ShiftByLag(w.time, w.field, result.lag_s, w.rate,
+                                 options.gap_factor);
+      band_full = BandPassRuns(w, field_aligned);
+      y = AtFitRows(w, band_full);
+      determine(Augment(design.Compress(y), w), &solution);
+      if (!solution.ok) {
+        result.message = "the least-squares solve failed: " + solution.message;
+        return result;
+      }
+    }
+  }
+
+  auto physical = [&](const Eigen::VectorXd& x_e) {
+    std::vector<double> v(w.p);
+    for (std::size_t j = 0; j < w.p; ++j) {
+      v[j] = x_e(static_cast<long>(j)) / w.scale(static_cast<long>(j));
+    }
+    return v;
+  };
+
+  // ---- robust loss -----------------------------------------------------
+  if (options.loss != RobustLoss::kNone) {
+    std::vector<double> values = physical(solution.x);
+    auto raw_residual_hp = [&](const std::vector<double>& v) {
+      std::vector<double> r(w.n, 0.0);
+      for (const Run& run : w.runs) {
+        for (std::size_t i = run.begin; i < run.end; ++i) {
+          double h = 0;
+          for (std::size_t j = 0; j < w.p; ++j) h += w.tm.values[i * w.p + j] * v[j];
+          r[i] = field_aligned[i] - h;
+        }
+      }
+      const std::size_t window =
+          std::max<std::size_t>(5, 2 * static_cast<std::size_t>(0.25 * w.rate) + 1);
+      const std::vector<double> med = RunningMedian(w, r, window);
+      for (const Run& run : w.runs) {
+        for (std::size_t i = run.begin; i < run.end; ++i) r[i] -= med[i];
+      }
+      return r;
+    };
+    std::vector<double> hp = raw_residual_hp(values);
+    std::vector<double> in_runs;
+    for (const Run& run : w.runs) {
+      in_runs.insert(in_runs.end(), hp.begin() + static_cast<long>(run.begin),
+                     hp.begin() + static_cast<long>(run.end));
+    }
+    const double med = Median(in_runs);
+    for (double& v : in_runs) v = std::fabs(v - med);
+    const double sigma = kMadToSigma * Median(in_runs);
+    const double c = (options.loss == RobustLoss::kHuber ? kHuberTuning
+                                                         : kCauchyTuning) *
+                     sigma;
+    result.loss_scale_nT = c;
+    if (c > 0 && std::isfinite(c)) {
+      std::unique_ptr<ceres::LossFunction> loss;
+      if (options.loss == RobustLoss::kHuber) {
+        loss = std::make_unique<ceres::HuberLoss>(c);
+      } else {
+        loss = std::make_unique<ceres::CauchyLoss>(c);
+      }
+      std::size_t downweighted = 0;
+      const double lambda = solution.lambda;
+      for (int iteration = 0; iteration < 20; ++iteration) {
+        std::vector<double> cleaned = field_aligned;
+        downweighted = 0;
+        for (const Run& run : w.runs) {
+          for (std::size_t i = run.begin; i < run.end; ++i) {
+            // Weight rho'(r^2) of the Ceres loss; psi(r) = rho' r.
+            double rho[3];
+            loss->Evaluate(hp[i] * hp[i], rho);
+            if (rho[1] < 0.5) ++downweighted;
+            cleaned[i] -= (1.0 - rho[1]) * hp[i];
+          }
+        }
+        band_full = BandPassRuns(w, cleaned);
+        y = AtFitRows(w, band_full);
+        Solution next = SolveWith(w, Augment(design.Compress(y), w), held,
+                                  lambda, true);
+        if (!next.ok) break;
+        const double change = (next.x - solution.x).cwiseAbs().maxCoeff();
+        const double size = 1.0 + solution.x.cwiseAbs().maxCoeff();
+        solution = next;
+        values = physical(solution.x);
+        hp = raw_residual_hp(values);
+        if (change < 1e-7 * size) break;
+      }
+      result.warnings.push_back(
+          std::to_string(downweighted) + " sample(s) (" +
+          Fixed(100.0 * static_cast<double>(downweighted) /
+                    static_cast<double>(std::max<std::size_t>(1, n_fit)), 2) +
+          "%) weighted below one half by the " + result.loss + " loss");
+      // Metrics below use the measured (not cleaned) field.
+      band_full = BandPassRuns(w, field_aligned);
+      y = AtFitRows(w, band_full);
+    }
+  }
+
+  // ---- coefficients --------------------------------------------------------
+  result.ridge_lambda = solution.lambda;
+  const double sigma2 = WhiteVariance(w, solution);
+  result.residual_sigma_nT =
+      std::sqrt(solution.rss / std::max(1.0, static_cast<double>(n_fit) - solution.dof));
+  result.values = physical(solution.x);
+  for (std::size_t j = 0; j < w.p; ++j) {
+    FitCoefficient c;
+    c.name = result.term_names[j];
+    c.unit = TermUnit(c.name);
+    c.value = result.values[j];
+    const double var =
+        solution.covariance_ok
+            ? solution.covariance(static_cast<long>(j), static_cast<long>(j)) * sigma2
+            : kNaN;
+    c.std_error = std::sqrt(std::max(0.0, var)) / w.scale(static_cast<long>(j));
+    c.held = held[j];
+    c.note = notes[j];
+    result.coefficients.push_back(c);
+    if (c.held) {
+      result.warnings.push_back(
+          "term " + c.name + " is not determined by this flight (" + c.note +
+          "): held at 0; " + HoldHint(c.name));
+    }
+  }
+  if (!solution.covariance_ok) {
+    result.warnings.push_back(
+        "standard errors could not be computed (singular covariance)");
+  }
+  std::size_t free_count = 0;
+  for (bool h : held) free_count += h ? 0 : 1;
+  if (free_count < 3) {
+    result.message =
+        "the flight determines only " + std::to_string(free_count) + " of " +
+        std::to_string(w.p) +
+        " terms: fly pitch, roll and yaw maneuvers at four headings";
+    return result;
+  }
+
+  // ---- series and metrics --------------------------------------------------
+  result.interference.assign(w.n, kNaN);
+  double h_sum = 0;
+  std::size_t h_count = 0;
+  for (std::size_t i = 0; i < w.n; ++i) {
+    if (w.tm.flags[i] & models::kFlagBadSample) continue;
+    double h = 0;
+    bool finite = true;
+    for (std::size_t j = 0; j < w.p; ++j) {
+      const double v = w.tm.values[i * w.p + j];
+      finite = finite && std::isfinite(v);
+      h += v * result.values[j];
+    }
+    if (!finite) continue;
+    result.interference[i] = h;
+    if (good[i]) {
+      h_sum += h;
+      ++h_count;
+    }
+  }
+  result.interference_mean_nT = h_count ? h_sum / static_cast<double>(h_count) : 0.0;
+
+  result.band_before.assign(w.n, kNaN);
+  result.band_after.assign(w.n, kNaN);
+  const Eigen::VectorXd fitted = w.a * solution.x;
+  for (std::size_t r = 0; r < n_fit; ++r) {
+    const std::size_t i = w.fit_rows[r];
+    result.band_before[i] = y(static_cast<long>(r));
+    result.band_after[i] = y(static_cast<long>(r)) - fitted(static_cast<long>(r));
+  }
+  result.maneuvers = ManeuverPeakToPeak(result.time, result.band_before,
+                                        result.band_after, maneuvers);
+  result.fom_before_nT = Fom(result.maneuvers, false);
+  result.fom_after_nT = Fom(result.maneuvers, true);
+  result.improvement_ratio =
+      ImprovementRatio(result.band_before, result.band_after);
+  result.band_rms_before_nT = Rms(result.band_before);
+  result.band_rms_after_nT = Rms(result.band_after);
+
+  // ---- leave-one-heading-out cross-validation ------------------------------
+  if (options.cross_validate) {
+    const std::vector<HeadingGroup> groups = GroupByHeading(maneuvers);
+    if (groups.size() >= 2) {
+      for (const HeadingGroup& g : groups) {
+        double t0 = INFINITY, t1 = -INFINITY;
+        std::vector<Maneuver> held_out;
+        for (std::size_t m : g.maneuvers) {
+          t0 = std::min(t0, maneuvers[m].start_s);
+          t1 = std::max(t1, maneuvers[m].end_s);
+          held_out.push_back(maneuvers[m]);
+        }
+        t0 -= trim_s;
+        t1 += trim_s;
+        std::vector<long> train;
+        for (std::size_t r = 0; r < n_fit; ++r) {
+          const double t = w.time[w.fit_rows[r]];
+          if (t < t0 || t > t1) train.push_back(static_cast<long>(r));
+        }
+        CrossValidationFold fold;
+        fold.heading_deg = g.heading_deg;
+        fold.maneuvers = g.maneuvers.size();
+        std::vector<ManeuverMetric> full = ManeuverPeakToPeak(
+            result.time, result.band_before, result.band_after, held_out);
+        fold.fom_before_nT = Fom(full, false);
+        fold.fom_full_fit_nT = Fom(full, true);
+        if (train.size() >= min_rows) {
+          Eigen::MatrixXd at(static_cast<long>(train.size()), static_cast<long>(w.p));
+          Eigen::VectorXd yt(static_cast<long>(train.size()));
+          for (std::size_t r = 0; r < train.size(); ++r) {
+            at.row(static_cast<long>(r)) = w.a.row(train[r]);
+            yt(static_cast<long>(r)) = y(train[r]);
+          }
+          const Solution s = SolveWith(w, Augment(Compress(at, yt), w), held,
+                                       solution.lambda, false);
+          if (s.ok) {
+            const Eigen::VectorXd fit_cv = w.a * s.x;
+            std::vector<double> after(w.n, kNaN);
+            for (std::size_t r = 0; r < n_fit; ++r) {
+              after[w.fit_rows[r]] = y(static_cast<long>(r)) - fit_cv(static_cast<long>(r));
+            }
+            fold.fom_nT = Fom(ManeuverPeakToPeak(result.time, result.band_before,
+                                                 after, held_out),
+                              true);
+          }
+        }
+        result.cross_validation.push_back(fold);
+        if (std::isfinite(fold.fom_nT) && std::isfinite(fold.fom_full_fit_nT) &&
+            fold.fom_nT > 2.0 * fold.fom_full_fit_nT &&
+            fold.fom_nT > 0.5 * fold.fom_before_nT / 10.0) {
+          result.warnings.push_back(
+              "heading " + Fixed(g.heading_deg, 0) +
+              " deg: the coefficients fitted without it leave " +
+              Fixed(fold.fom_nT, 3) + " nT FOM there (full fit " +
+              Fixed(fold.fom_full_fit_nT, 3) +
+              " nT): the model does not generalise well across headings");
+        }
+      }
+    }
+  }
+
+  result.usable = true;
+  result.message = "ok";
+  return result;
+}
+
+}  // namespace fluxtrim::core
