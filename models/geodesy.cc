@@ -6,14 +6,16 @@ namespace fluxtrim::models {
 namespace {
 
 constexpr double kFlattening = 1.0 / kWgs84InverseFlattening;
-constexpr double kE2 = kFlattening * (2.0 - kFlattening);  // first eccentricity^2
+constexpr double kE2 =
+    kFlattening * (2.0 - kFlattening);  // first eccentricity^2
 
 // Meridian-plane coordinates: p (distance from the axis) and z.
 void MeridianPlane(double lat_rad, double height_m, double* p, double* z) {
   const double sin_lat = std::sin(lat_rad);
   const double cos_lat = std::cos(lat_rad);
   // Prime-vertical radius of curvature N (TR8350.2 eq. 4-15).
-  const double n = kWgs84SemiMajorAxis_m / std::sqrt(1.0 - kE2 * sin_lat * sin_lat);
+  const double n =
+      kWgs84SemiMajorAxis_m / std::sqrt(1.0 - kE2 * sin_lat * sin_lat);
   *p = (n + height_m) * cos_lat;
   *z = (n * (1.0 - kE2) + height_m) * sin_lat;
 }

@@ -8,8 +8,9 @@ namespace fluxtrim::models {
 
 SchmidtLegendre::SchmidtLegendre(int max_degree) : max_degree_(max_degree) {
   if (max_degree < 0) {
-    throw std::invalid_argument("SchmidtLegendre: max_degree must be >= 0, got " +
-                                std::to_string(max_degree));
+    throw std::invalid_argument(
+        "SchmidtLegendre: max_degree must be >= 0, got " +
+        std::to_string(max_degree));
   }
   diagonal_.assign(max_degree + 1, 1.0);
   for (int m = 2; m <= max_degree; ++m) {
@@ -21,7 +22,8 @@ SchmidtLegendre::SchmidtLegendre(int max_degree) : max_degree_(max_degree) {
     for (int n = m + 1; n <= max_degree; ++n) {
       const double denom = std::sqrt(double(n) * n - double(m) * m);
       a_[Index(n, m)] = (2.0 * n - 1.0) / denom;
-      b_[Index(n, m)] = std::sqrt(double(n - 1) * (n - 1) - double(m) * m) / denom;
+      b_[Index(n, m)] =
+          std::sqrt(double(n - 1) * (n - 1) - double(m) * m) / denom;
     }
   }
 }

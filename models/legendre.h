@@ -46,8 +46,8 @@ class SchmidtLegendre {
   //   dp_dtheta[i]  d P_n^m / d theta (per radian)
   //   p_over_sin[i] P_n^m / sin theta for m >= 1 (finite at the poles);
   //                 0 for m = 0, where it is not used.
-  void Compute(double cos_theta, double sin_theta, double* p,
-               double* dp_dtheta, double* p_over_sin) const;
+  void Compute(double cos_theta, double sin_theta, double* p, double* dp_dtheta,
+               double* p_over_sin) const;
 
  private:
   int max_degree_ = 0;

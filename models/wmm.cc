@@ -36,9 +36,12 @@ std::vector<std::string_view> SplitWhitespace(std::string_view line) {
   std::vector<std::string_view> tokens;
   std::size_t i = 0;
   while (i < line.size()) {
-    while (i < line.size() && std::isspace(static_cast<unsigned char>(line[i]))) ++i;
+    while (i < line.size() && std::isspace(static_cast<unsigned char>(line[i])))
+      ++i;
     std::size_t j = i;
-    while (j < line.size() && !std::isspace(static_cast<unsigned char>(line[j]))) ++j;
+    while (j < line.size() &&
+           !std::isspace(static_cast<unsigned char>(line[j])))
+      ++j;
     if (j > i) tokens.push_back(line.substr(i, j - i));
     i = j;
   }
@@ -62,7 +65,8 @@ bool ParseInt(std::string_view token, int* value) {
 [[noreturn]] void Fail(const std::string& source, int line,
                        const std::string& expected,
                        std::string_view found = {}) {
-  std::string message = source + ":" + std::to_string(line) + ": expected " + expected;
+  std::string message =
+      source + ":" + std::to_string(line) + ": expected " + expected;
   if (!found.empty()) message += ", found '" + std::string(found) + "'";
   throw std::runtime_error(message);
 }
@@ -122,8 +126,10 @@ MagneticModel MagneticModel::FromCofText(const std::string& text,
            line);
     }
     int n = 0, m = 0;
-    if (!ParseInt(tokens[0], &n)) Fail(source, line_no, "degree n as an integer", tokens[0]);
-    if (!ParseInt(tokens[1], &m)) Fail(source, line_no, "order m as an integer", tokens[1]);
+    if (!ParseInt(tokens[0], &n))
+      Fail(source, line_no, "degree n as an integer", tokens[0]);
+    if (!ParseInt(tokens[1], &m))
+      Fail(source, line_no, "order m as an integer", tokens[1]);
     if (n != expect_n || m != expect_m) {
       Fail(source, line_no,
            "degree and order (n m) = (" + std::to_string(expect_n) + " " +
@@ -131,8 +137,8 @@ MagneticModel MagneticModel::FromCofText(const std::string& text,
                ") next: lines are ordered by n, then m = 0..n",
            std::string(tokens[0]) + " " + std::string(tokens[1]));
     }
-    static const char* const kColumn[] = {"", "", "g (nT)", "h (nT)",
-                                          "dg (nT/yr)", "dh (nT/yr)"};
+    static const char* const kColumn[] = {"",       "",           "g (nT)",
+                                          "h (nT)", "dg (nT/yr)", "dh (nT/yr)"};
     double values[6] = {0, 0, 0, 0, 0, 0};
     for (int c = 2; c < 6; ++c) {
       if (!ParseDouble(tokens[c], &values[c])) {
@@ -196,7 +202,8 @@ MagneticModel MagneticModel::FromCofText(const std::string& text,
 
 MagneticModel MagneticModel::FromCofFile(const std::string& path) {
   std::ifstream file(path, std::ios::binary);
-  if (!file) throw std::runtime_error(path + ": cannot open the coefficient file");
+  if (!file)
+    throw std::runtime_error(path + ": cannot open the coefficient file");
   std::ostringstream text;
   text << file.rdbuf();
   if (file.bad()) throw std::runtime_error(path + ": read error");
@@ -277,8 +284,8 @@ void MagneticModel::Synthesize(double lat_deg, double lon_deg, double alt_m,
   const double dt = decimal_year - epoch_;
   const double ratio = kReferenceRadius_m / pos.radius_m;
   double ratio_pow = ratio * ratio;  // (a/r)^(n+2) after the update, n = 1
-  double b[3] = {0, 0, 0};   // r, theta, lambda
-  double db[3] = {0, 0, 0};  // their rates
+  double b[3] = {0, 0, 0};           // r, theta, lambda
+  double db[3] = {0, 0, 0};          // their rates
   for (int n = 1; n <= n_max; ++n) {
     ratio_pow *= ratio;
     double sum_r = 0, sum_theta = 0, sum_lambda = 0;
@@ -387,8 +394,10 @@ double ParseDecimalYear(const std::string& text) {
         "Thh:mm[:ss[.s]] UTC) or a decimal year such as 2025.5");
   };
   std::string_view s(text);
-  while (!s.empty() && std::isspace(static_cast<unsigned char>(s.front()))) s.remove_prefix(1);
-  while (!s.empty() && std::isspace(static_cast<unsigned char>(s.back()))) s.remove_suffix(1);
+  while (!s.empty() && std::isspace(static_cast<unsigned char>(s.front())))
+    s.remove_prefix(1);
+  while (!s.empty() && std::isspace(static_cast<unsigned char>(s.back())))
+    s.remove_suffix(1);
   if (s.empty()) return fail();
 
   const bool calendar = s.size() >= 10 && s[4] == '-' && s[7] == '-';
@@ -439,9 +448,11 @@ double ParseDecimalYear(const std::string& text) {
     if (time.size() > 5) {
       if (time[5] != ':' || time.size() < 8) return fail();
       const std::string_view sec = time.substr(6);
-      if (sec[0] < '0' || sec[0] > '9' || !ParseDouble(sec, &second)) return fail();
+      if (sec[0] < '0' || sec[0] > '9' || !ParseDouble(sec, &second))
+        return fail();
     }
-    if (hour > 23 || minute > 59 || !(second >= 0.0 && second < 61.0)) return fail();
+    if (hour > 23 || minute > 59 || !(second >= 0.0 && second < 61.0))
+      return fail();
     day_fraction = (hour * 3600.0 + minute * 60.0 + second) / 86400.0;
   }
 

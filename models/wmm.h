@@ -12,11 +12,11 @@ namespace fluxtrim::models {
 
 // Main field at a point, geodetic north/east/down frame.
 struct GeomagneticField {
-  double x_nT = 0;  // north
-  double y_nT = 0;  // east
-  double z_nT = 0;  // down (positive down)
-  double h_nT = 0;  // horizontal intensity
-  double f_nT = 0;  // total intensity
+  double x_nT = 0;      // north
+  double y_nT = 0;      // east
+  double z_nT = 0;      // down (positive down)
+  double h_nT = 0;      // horizontal intensity
+  double f_nT = 0;      // total intensity
   double incl_deg = 0;  // inclination, positive down
   double decl_deg = 0;  // declination, positive east of true north
 };

@@ -27,21 +27,22 @@ struct Reference {
 // FLUXTRIM_PYTHON (Debian's python3-scipy), once for all colatitudes.
 std::vector<Reference> SciPyReference(int max_degree,
                                       const std::vector<double>& thetas) {
-  std::string command = std::string(FLUXTRIM_PYTHON) +
-                        " -c '"
-                        "import math,sys\n"
-                        "from scipy.special import lpmn\n"
-                        "N=int(sys.argv[1])\n"
-                        "for k,a in enumerate(sys.argv[2:]):\n"
-                        "  t=float(a); x=math.cos(t); s=math.sin(t)\n"
-                        "  P,D=lpmn(N,N,x)\n"
-                        "  for n in range(N+1):\n"
-                        "    for m in range(n+1):\n"
-                        "      c=math.sqrt((1 if m==0 else 2)*math.factorial(n-m)"
-                        "/math.factorial(n+m))*(-1)**m\n"
-                        "      print(k,n,m,repr(c*P[m,n]),repr(-s*c*D[m,n]))\n"
-                        "' " +
-                        std::to_string(max_degree);
+  std::string command =
+      std::string(FLUXTRIM_PYTHON) +
+      " -c '"
+      "import math,sys\n"
+      "from scipy.special import lpmn\n"
+      "N=int(sys.argv[1])\n"
+      "for k,a in enumerate(sys.argv[2:]):\n"
+      "  t=float(a); x=math.cos(t); s=math.sin(t)\n"
+      "  P,D=lpmn(N,N,x)\n"
+      "  for n in range(N+1):\n"
+      "    for m in range(n+1):\n"
+      "      c=math.sqrt((1 if m==0 else 2)*math.factorial(n-m)"
+      "/math.factorial(n+m))*(-1)**m\n"
+      "      print(k,n,m,repr(c*P[m,n]),repr(-s*c*D[m,n]))\n"
+      "' " +
+      std::to_string(max_degree);
   for (double theta : thetas) {
     char arg[40];
     std::snprintf(arg, sizeof arg, " %.17g", theta);

@@ -42,10 +42,10 @@ std::vector<TestPoint> ReadTestValues() {
   while (std::getline(in, line)) {
     if (line.empty() || line[0] == '#') continue;
     TestPoint p{};
-    const int read = std::sscanf(
-        line.c_str(), "%lf,%lf,%lf,%lf,%lf,%lf,%lf,%lf,%lf,%lf,%lf", &p.year,
-        &p.height_km, &p.lat_deg, &p.lon_deg, &p.x, &p.y, &p.z, &p.h, &p.f,
-        &p.incl_deg, &p.decl_deg);
+    const int read =
+        std::sscanf(line.c_str(), "%lf,%lf,%lf,%lf,%lf,%lf,%lf,%lf,%lf,%lf,%lf",
+                    &p.year, &p.height_km, &p.lat_deg, &p.lon_deg, &p.x, &p.y,
+                    &p.z, &p.h, &p.f, &p.incl_deg, &p.decl_deg);
     EXPECT_EQ(read, 11) << line;
     points.push_back(p);
   }
@@ -74,11 +74,11 @@ TEST(WmmTest, ReproducesAllHundredPublishedWmm2025TestValues) {
                            b.f_nT - p.f,
                            b.incl_deg - p.incl_deg,
                            AngleDiffDeg(b.decl_deg, p.decl_deg)};
-    for (int k = 0; k < 7; ++k) worst[k] = std::max(worst[k], std::fabs(err[k]));
-    const std::string where = "at " + std::to_string(p.year) + " " +
-                              std::to_string(p.height_km) + " km " +
-                              std::to_string(p.lat_deg) + " " +
-                              std::to_string(p.lon_deg);
+    for (int k = 0; k < 7; ++k)
+      worst[k] = std::max(worst[k], std::fabs(err[k]));
+    const std::string where =
+        "at " + std::to_string(p.year) + " " + std::to_string(p.height_km) +
+        " km " + std::to_string(p.lat_deg) + " " + std::to_string(p.lon_deg);
     EXPECT_NEAR(b.x_nT, p.x, kComponentTol_nT) << where;
     EXPECT_NEAR(b.y_nT, p.y, kComponentTol_nT) << where;
     EXPECT_NEAR(b.z_nT, p.z, kComponentTol_nT) << where;
@@ -91,8 +91,8 @@ TEST(WmmTest, ReproducesAllHundredPublishedWmm2025TestValues) {
       "WMM2025 published test values, worst |error| over %zu points:\n"
       "  X %.2e nT, Y %.2e nT, Z %.2e nT, H %.2e nT, F %.2e nT,\n"
       "  I %.4f deg, D %.4f deg (published I, D rounded to 0.01 deg)\n",
-      points.size(), worst[0], worst[1], worst[2], worst[3], worst[4],
-      worst[5], worst[6]);
+      points.size(), worst[0], worst[1], worst[2], worst[3], worst[4], worst[5],
+      worst[6]);
 }
 
 TEST(WmmTest, BuiltInModelIsWmm2025OfEpoch2025) {
@@ -143,7 +143,8 @@ TEST(WmmTest, AxialDipoleMatchesClosedFormAtEquatorAndPole) {
   // (Merrill, McElhinny & McFadden, "The Magnetic Field of the Earth",
   // 1996, ch. 2; from memory). At r = a: equator X = -g10, pole Z = -2 g10.
   const double g10 = -30000.0;
-  const MagneticModel dipole = MagneticModel::FromCofText(DipoleCof(g10, 0), "dipole");
+  const MagneticModel dipole =
+      MagneticModel::FromCofText(DipoleCof(g10, 0), "dipole");
   // Geodetic and geocentric latitude coincide at the equator and the poles;
   // choose the height that puts the point on the reference sphere.
   const double a_ref = MagneticModel::kReferenceRadius_m;
@@ -157,10 +158,12 @@ TEST(WmmTest, AxialDipoleMatchesClosedFormAtEquatorAndPole) {
   EXPECT_NEAR(eq.x_nT, -g10, kTol_nT);
   EXPECT_NEAR(eq.y_nT, 0.0, kTol_nT);
   EXPECT_NEAR(eq.z_nT, 0.0, kTol_nT);
-  const GeomagneticField north = dipole.Field(90.0, 0.0, a_ref - b_wgs84, 2025.0);
+  const GeomagneticField north =
+      dipole.Field(90.0, 0.0, a_ref - b_wgs84, 2025.0);
   EXPECT_NEAR(north.z_nT, -2.0 * g10, kTol_nT);
   EXPECT_NEAR(north.h_nT, 0.0, kTol_nT);
-  const GeomagneticField south = dipole.Field(-90.0, 0.0, a_ref - b_wgs84, 2025.0);
+  const GeomagneticField south =
+      dipole.Field(-90.0, 0.0, a_ref - b_wgs84, 2025.0);
   EXPECT_NEAR(south.z_nT, 2.0 * g10, kTol_nT);
   // Inverse-cube decay with radius (same source): at r = 2a, 1/8.
   const GeomagneticField far =
@@ -252,9 +255,9 @@ TEST(WmmTest, RatesAreTheTimeDerivativesOfTheElements) {
   struct Point {
     double lat_deg, lon_deg, alt_m;
   };
-  for (const Point& p : {Point{48.1, 11.6, 500.0}, Point{-33.9, 151.2, 0.0},
-                         Point{78.2, 15.6, 3000.0},
-                         Point{-89.0, 10.0, 10000.0}}) {
+  for (const Point& p :
+       {Point{48.1, 11.6, 500.0}, Point{-33.9, 151.2, 0.0},
+        Point{78.2, 15.6, 3000.0}, Point{-89.0, 10.0, 10000.0}}) {
     const double t = 2026.4;
     const GeomagneticFieldWithRate fr =
         wmm.FieldWithRate(p.lat_deg, p.lon_deg, p.alt_m, t);
@@ -383,9 +386,9 @@ TEST(WmmCofReaderTest, BadNumberNamesTheColumn) {
 }
 
 TEST(WmmCofReaderTest, WrongFieldCountIsRejected) {
-  ExpectCofError(std::string(kHeader) + k10 + "  1  1  -1410.8  4545.4  9.7\n" +
-                     kNines,
-                 3, "6 fields");
+  ExpectCofError(
+      std::string(kHeader) + k10 + "  1  1  -1410.8  4545.4  9.7\n" + kNines, 3,
+      "6 fields");
 }
 
 TEST(WmmCofReaderTest, MissingTerminatorIsRejected) {
@@ -395,9 +398,9 @@ TEST(WmmCofReaderTest, MissingTerminatorIsRejected) {
 
 TEST(WmmCofReaderTest, DegreeOutOfOrderIsRejected) {
   ExpectCofError(std::string(kHeader) + k11 + k10 + kNines, 2, "(1 0)");
-  ExpectCofError(std::string(kHeader) + k10 + k11 +
-                     "  3  0   1.0 0.0 0.0 0.0\n" + kNines,
-                 4, "(2 0)");
+  ExpectCofError(
+      std::string(kHeader) + k10 + k11 + "  3  0   1.0 0.0 0.0 0.0\n" + kNines,
+      4, "(2 0)");
   ExpectCofError(std::string(kHeader) + k10 + k10 + kNines, 3, "(1 1)");
 }
 
@@ -430,9 +433,10 @@ std::vector<double> PythonDecimalYears(const std::vector<std::string>& dates) {
 
 TEST(WmmDateTest, CalendarDatesMatchPythonDatetimeIncludingLeapYears) {
   const std::vector<std::string> dates = {
-      "2025-01-01", "2025-06-30", "2025-12-31", "2024-02-29", "2024-03-01",
-      "2024-12-31", "2000-02-29", "2000-12-31", "1900-12-31", "2100-03-01",
-      "2025-07-02T12:00:00", "2028-02-29T23:59:59.5"};
+      "2025-01-01", "2025-06-30",          "2025-12-31",
+      "2024-02-29", "2024-03-01",          "2024-12-31",
+      "2000-02-29", "2000-12-31",          "1900-12-31",
+      "2100-03-01", "2025-07-02T12:00:00", "2028-02-29T23:59:59.5"};
   const std::vector<double> expected = PythonDecimalYears(dates);
   ASSERT_EQ(expected.size(), dates.size()) << "python datetime query failed";
   // Both compute year + seconds / seconds-in-year in double: 1e-12 yr
