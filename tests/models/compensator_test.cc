@@ -24,14 +24,14 @@ CompensatorModel SmallModel(double lag_s) {
   return m;
 }
 
-struct Run {
+struct Outputs {
   std::vector<CompensatedSample> out;
 };
 
 // Pushes n samples of a slowly rotating field; f is a known function of time.
-Run Push(Compensator& c, int n, double t0, double (*f_of_t)(double),
+Outputs Push(Compensator& c, int n, double t0, double (*f_of_t)(double),
          int gap_at = -1) {
-  Run run;
+  Outputs run;
   std::vector<CompensatedSample> buf(static_cast<std::size_t>(c.max_outputs()));
   for (int i = 0; i < n; ++i) {
     double t = t0 + 0.1 * i;
@@ -51,7 +51,7 @@ double Linear(double t) { return 50000.0 + 2.0 * t; }
 TEST(CompensatorTest, EmitsEverySampleOnceInOrder) {
   for (double lag : {0.0, 0.13, -0.27, 0.4}) {
     Compensator c(SmallModel(lag));
-    const Run run = Push(c, 200, 0.0, Linear, 120);
+    const Outputs run = Push(c, 200, 0.0, Linear, 120);
     ASSERT_EQ(run.out.size(), 200u) << "lag " << lag;
     for (std::size_t i = 0; i < run.out.size(); ++i) {
       EXPECT_EQ(run.out[i].index, i);
@@ -64,7 +64,7 @@ TEST(CompensatorTest, LagShiftsTheScalarReadingExactlyForALinearSignal) {
   // ends f(t + lag) of a linear f is known in closed form.
   const double lag = 0.13;
   Compensator c(SmallModel(lag));
-  const Run run = Push(c, 100, 0.0, Linear);
+  const Outputs run = Push(c, 100, 0.0, Linear);
   for (const CompensatedSample& s : run.out) {
     if (s.flags & kFlagLagEdge) continue;
     const double f_lagged = Linear(s.time + lag);
@@ -75,18 +75,18 @@ TEST(CompensatorTest, LagShiftsTheScalarReadingExactlyForALinearSignal) {
 
 TEST(CompensatorTest, InterferenceHasTheModelMeanRemoved) {
   Compensator c(SmallModel(0.0));
-  const Run run = Push(c, 60, 0.0, Linear);
+  const Outputs run = Push(c, 60, 0.0, Linear);
   for (const CompensatedSample& s : run.out) {
     EXPECT_DOUBLE_EQ(s.f_comp, Linear(s.time) - s.f_interference);
   }
 }
 
-TEST(CompensatorTest, OutputsDoNotDependOnHowSamplesArePushed) {
+TEST(CompensatorTest, IsDeterministicAndFlagsBothSidesOfAGap) {
   // Same input twice through fresh engines: identical outputs (no hidden
   // state across runs), and the flags of the gap are present.
   Compensator a(SmallModel(0.2)), b(SmallModel(0.2));
-  const Run ra = Push(a, 150, 0.0, Linear, 70);
-  const Run rb = Push(b, 150, 0.0, Linear, 70);
+  const Outputs ra = Push(a, 150, 0.0, Linear, 70);
+  const Outputs rb = Push(b, 150, 0.0, Linear, 70);
   ASSERT_EQ(ra.out.size(), rb.out.size());
   bool saw_gap_edge = false;
   for (std::size_t i = 0; i < ra.out.size(); ++i) {
@@ -108,7 +108,7 @@ TEST(CompensatorTest, FluxgateOnlyCompensatesTheFluxgateMagnitude) {
   CompensatorModel m = SmallModel(0.0);
   m.scalar_sensor = false;
   Compensator c(m);
-  const Run run = Push(c, 40, 0.0, Linear);
+  const Outputs run = Push(c, 40, 0.0, Linear);
   for (const CompensatedSample& s : run.out) {
     EXPECT_NEAR(s.f_comp + s.f_interference, s.bt, 1e-9);
   }
