@@ -1,0 +1,283 @@
+#include "src/core/apply.h"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <sstream>
+
+#include "io/error.h"
+#include "io/memory_recording.h"
+#include "models/tolles_lawson.h"
+
+namespace fluxtrim::core {
+namespace {
+
+constexpr double kDegToRad = 3.14159265358979323846 / 180.0;
+constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
+
+bool UsesScalarSensor(const proto::CompensationModel& model) {
+  return model.inputs().field_source() != "|B|";
+}
+
+std::string Join(const std::vector<std::string>& names) {
+  std::string s;
+  for (const std::string& n : names) s += (s.empty() ? "" : ", ") + n;
+  return s;
+}
+
+}  // namespace
+
+models::CompensatorModel ToCompensatorModel(
+    const proto::CompensationModel& model, const std::string& source) {
+  models::CompensatorModel m;
+  try {
+    m.engine.terms = models::ParseTermSet(model.terms().set());
+  } catch (const std::invalid_argument& e) {
+    throw io::InputError(source, "terms", e.what());
+  }
+  m.engine.terms.aux.assign(model.terms().aux().begin(),
+                            model.terms().aux().end());
+  m.engine.half_width = model.derivative_half_width();
+  m.engine.sample_rate_hz = model.sample_rate_hz();
+  if (model.gap_factor() > 0) m.engine.gap_factor = model.gap_factor();
+  const std::vector<std::string> names = models::TermNames(m.engine.terms);
+  if (static_cast<std::size_t>(model.coefficients_size()) != names.size()) {
+    throw io::InputError(source, "coefficients",
+                         "expected " + std::to_string(names.size()) +
+                             " coefficients for the term set '" +
+                             model.terms().set() + "', found " +
+                             std::to_string(model.coefficients_size()));
+  }
+  for (std::size_t i = 0; i < names.size(); ++i) {
+    const proto::Coefficient& c = model.coefficients(static_cast<int>(i));
+    if (c.name() != names[i] || !std::isfinite(c.value())) {
+      throw io::InputError(source, "coefficients",
+                           "expected a finite coefficient '" + names[i] +
+                               "' at position " + std::to_string(i + 1) +
+                               ", found '" + c.name() + "'");
+    }
+    m.coefficients.push_back(c.value());
+  }
+  m.lag_s = model.lag_s();
+  m.interference_mean_nT = model.interference_mean_nt();
+  m.scalar_sensor = UsesScalarSensor(model);
+  if (model.attitude().present()) {
+    m.has_attitude_range = true;
+    m.roll_min_deg = model.attitude().roll_min_deg();
+    m.roll_max_deg = model.attitude().roll_max_deg();
+    m.pitch_min_deg = model.attitude().pitch_min_deg();
+    m.pitch_max_deg = model.attitude().pitch_max_deg();
+  }
+  if (model.has_sensor()) {
+    const proto::SensorCalibration& s = model.sensor();
+    m.has_sensor = true;
+    auto set3 = [](const proto::Vector3& v, double scale, double* out) {
+      out[0] = v.x() * scale;
+      out[1] = v.y() * scale;
+      out[2] = v.z() * scale;
+    };
+    set3(s.gains(), 1.0, m.sensor.gains);
+    set3(s.offsets_nt(), 1.0, m.sensor.offsets_nT);
+    set3(s.nonorthogonality_deg(), kDegToRad, m.sensor.nonorthogonality_rad);
+    if (s.has_misalignment()) {
+      set3(s.misalignment_deg(), kDegToRad, m.sensor.misalignment_rad);
+    }
+    set3(s.gain_tc_per_k(), 1.0, m.sensor.gain_tc_per_K);
+    set3(s.offset_tc_nt_per_k(), 1.0, m.sensor.offset_tc_nT_per_K);
+    m.sensor.reference_temp_c = s.reference_temp_c();
+  }
+  return m;
+}
+
+std::vector<std::string> RequiredChannels(
+    const proto::CompensationModel& model) {
+  std::vector<std::string> names = {"time", "bx", "by", "bz"};
+  if (UsesScalarSensor(model)) names.push_back("f");
+  for (const std::string& aux : model.terms().aux()) names.push_back(aux);
+  if (model.has_sensor() && !model.sensor().temperature_channel().empty()) {
+    names.push_back(model.sensor().temperature_channel());
+  }
+  return names;
+}
+
+double MedianRateHz(const std::vector<double>& time) {
+  std::vector<double> steps;
+  steps.reserve(time.size());
+  for (std::size_t i = 1; i < time.size(); ++i) {
+    const double dt = time[i] - time[i - 1];
+    if (dt > 0 && std::isfinite(dt)) steps.push_back(dt);
+  }
+  if (steps.empty()) return kNaN;
+  const std::size_t mid = steps.size() / 2;
+  std::nth_element(steps.begin(), steps.begin() + static_cast<std::ptrdiff_t>(mid),
+                   steps.end());
+  return 1.0 / steps[mid];
+}
+
+void CheckRecordingFitsModel(const proto::CompensationModel& model,
+                             const io::Table& first_chunk,
+                             const std::string& file, double max_rate_error) {
+  std::vector<std::string> missing;
+  for (const std::string& name : RequiredChannels(model)) {
+    if (!first_chunk.Has(name)) missing.push_back(name);
+  }
+  if (!missing.empty()) {
+    std::vector<std::string> have;
+    for (const io::ChannelInfo& c : first_chunk.Schema()) have.push_back(c.name);
+    throw io::InputError(
+        file, "channels",
+        "the model needs channel(s) " + Join(missing) +
+            " that the recording lacks (it has " + Join(have) +
+            "); map other column names with --map NAME=COLUMN");
+  }
+  const double rate = MedianRateHz(first_chunk.Column("time"));
+  if (!std::isfinite(rate)) {
+    throw io::InputError(file, "time",
+                         "expected at least two increasing times to measure "
+                         "the sample rate");
+  }
+  const double error = rate / model.sample_rate_hz() - 1.0;
+  if (std::abs(error) > max_rate_error) {
+    std::ostringstream msg;
+    msg << "sample rate " << rate << " Hz differs from the model's "
+        << model.sample_rate_hz() << " Hz by " << 100.0 * error
+        << " % (limit " << 100.0 * max_rate_error
+        << " %): fit a model at this rate or resample the recording";
+    throw io::InputError(file, "sample rate", msg.str());
+  }
+}
+
+std::vector<io::ChannelInfo> OutputSchema(
+    const std::vector<io::ChannelInfo>& input) {
+  std::vector<io::ChannelInfo> schema = input;
+  for (const char* name : {"f_comp", "f_interference", "flags"}) {
+    for (const io::ChannelInfo& c : input) {
+      if (io::EqualsIgnoreCase(c.name, name)) {
+        throw io::InputError("", "channels",
+                             std::string("the recording already has a channel '") +
+                                 name + "'; rename it with --map");
+      }
+    }
+  }
+  schema.push_back({"f_comp", "nT", "compensated total field"});
+  schema.push_back({"f_interference", "nT",
+                    "modelled platform interference, model mean removed"});
+  schema.push_back({"flags", "", "per-sample flags (see fluxtrim apply --help)"});
+  return schema;
+}
+
+ApplyResult ApplyChunked(const proto::CompensationModel& model,
+                         io::RecordingReader& reader,
+                         io::RecordingWriter& writer,
+                         const ApplyOptions& options) {
+  const std::string& file = reader.path();
+  models::Compensator compensator(ToCompensatorModel(model, file));
+  ApplyResult result;
+  result.latency_samples = compensator.latency_samples();
+
+  io::Table chunk(reader.channels());
+  io::Table pending(reader.channels());  // inputs still waiting for output
+  io::Table out(OutputSchema(reader.channels()));
+  std::vector<models::CompensatedSample> ready(
+      static_cast<std::size_t>(compensator.max_outputs()));
+  std::vector<double> f_comp, f_int, flags;
+
+  const std::size_t n_aux = static_cast<std::size_t>(model.terms().aux_size());
+  std::vector<double> aux(n_aux);
+  bool checked = false;
+  int i_time = -1, i_bx = -1, i_by = -1, i_bz = -1, i_f = -1, i_roll = -1,
+      i_pitch = -1, i_temp = -1;
+  std::vector<int> i_aux(n_aux, -1);
+
+  auto collect = [&](int n) {
+    for (int r = 0; r < n; ++r) {
+      const models::CompensatedSample& s = ready[static_cast<std::size_t>(r)];
+      f_comp.push_back(s.f_comp);
+      f_int.push_back(s.f_interference);
+      flags.push_back(static_cast<double>(s.flags));
+      if (s.flags) ++result.flagged;
+    }
+  };
+  // Writes the pending rows whose outputs have arrived.
+  auto write_done = [&]() {
+    const std::size_t done = f_comp.size();
+    if (done == 0) return;
+    out.ClearRows();
+    for (std::size_t c = 0; c < pending.cols(); ++c) {
+      const auto& src = pending.channel(c).values;
+      out.channel(c).values.assign(src.begin(),
+                                   src.begin() + static_cast<std::ptrdiff_t>(done));
+    }
+    const std::size_t base = pending.cols();
+    out.channel(base).values = f_comp;
+    out.channel(base + 1).values = f_int;
+    out.channel(base + 2).values = flags;
+    writer.Write(out);
+    pending.Slice(done, pending.rows());
+    result.samples += done;
+    f_comp.clear();
+    f_int.clear();
+    flags.clear();
+    if (options.progress) options.progress(result.samples);
+  };
+
+  while (reader.ReadChunk(&chunk, options.chunk_rows) > 0) {
+    if (!checked) {
+      CheckRecordingFitsModel(model, chunk, file);
+      i_time = chunk.Find("time");
+      i_bx = chunk.Find("bx");
+      i_by = chunk.Find("by");
+      i_bz = chunk.Find("bz");
+      i_f = chunk.Find("f");
+      i_roll = chunk.Find("roll");
+      i_pitch = chunk.Find("pitch");
+      if (model.has_sensor() && !model.sensor().temperature_channel().empty()) {
+        i_temp = chunk.Find(model.sensor().temperature_channel());
+      }
+      for (std::size_t a = 0; a < n_aux; ++a) {
+        i_aux[a] = chunk.Find(model.terms().aux(static_cast<int>(a)));
+      }
+      checked = true;
+    }
+    pending.Append(chunk);
+    auto col = [&chunk](int i) -> const double* {
+      return i < 0 ? nullptr : chunk.channel(static_cast<std::size_t>(i)).values.data();
+    };
+    const double *t = col(i_time), *bx = col(i_bx), *by = col(i_by),
+                 *bz = col(i_bz), *f = col(i_f), *roll = col(i_roll),
+                 *pitch = col(i_pitch), *temp = col(i_temp);
+    const bool scalar = compensator.model().scalar_sensor;
+    for (std::size_t r = 0; r < chunk.rows(); ++r) {
+      const double b[3] = {bx[r], by[r], bz[r]};
+      for (std::size_t a = 0; a < n_aux; ++a) {
+        aux[a] = chunk.channel(static_cast<std::size_t>(i_aux[a])).values[r];
+      }
+      const int n = compensator.Push(
+          t[r], b, scalar && f ? f[r] : kNaN, n_aux ? aux.data() : nullptr,
+          roll ? roll[r] : kNaN, pitch ? pitch[r] : kNaN,
+          temp ? temp[r] : compensator.model().sensor.reference_temp_c,
+          ready.data());
+      collect(n);
+    }
+    write_done();
+  }
+  if (!checked) {
+    throw io::InputError(file, 0, 0, "expected samples, found none");
+  }
+  collect(compensator.Flush(ready.data()));
+  write_done();
+  writer.Close();
+  return result;
+}
+
+io::Table ApplyInMemory(const proto::CompensationModel& model,
+                        const io::Table& recording, const std::string& file) {
+  io::TableReader reader(recording, file);
+  io::TableWriter writer(OutputSchema(recording.Schema()));
+  ApplyOptions options;
+  options.chunk_rows = std::max<std::size_t>(recording.rows(), 1);
+  ApplyChunked(model, reader, writer, options);
+  return std::move(writer.table());
+}
+
+}  // namespace fluxtrim::core
