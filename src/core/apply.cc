@@ -221,36 +221,21 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
     if (options.progress) options.progress(result.samples);
   };
 
-  while (reader.ReadChunk(&chunk, options.chunk_rows) > 0) {
-    if (!checked) {
-      CheckRecordingFitsModel(model, chunk, file);
-      i_time = chunk.Find("time");
-      i_bx = chunk.Find("bx");
-      i_by = chunk.Find("by");
-      i_bz = chunk.Find("bz");
-      i_f = chunk.Find("f");
-      i_roll = chunk.Find("roll");
-      i_pitch = chunk.Find("pitch");
-      if (model.has_sensor() && !model.sensor().temperature_channel().empty()) {
-        i_temp = chunk.Find(model.sensor().temperature_channel());
-      }
-      for (std::size_t a = 0; a < n_aux; ++a) {
-        i_aux[a] = chunk.Find(model.terms().aux(static_cast<int>(a)));
-      }
-      checked = true;
-    }
-    pending.Append(chunk);
-    auto col = [&chunk](int i) -> const double* {
-      return i < 0 ? nullptr : chunk.channel(static_cast<std::size_t>(i)).values.data();
+  // Rows of `pending` already pushed into the compensator.
+  std::size_t pushed = 0;
+  auto push_pending = [&]() {
+    auto col = [&pending](int i) -> const double* {
+      return i < 0 ? nullptr
+                   : pending.channel(static_cast<std::size_t>(i)).values.data();
     };
     const double *t = col(i_time), *bx = col(i_bx), *by = col(i_by),
                  *bz = col(i_bz), *f = col(i_f), *roll = col(i_roll),
                  *pitch = col(i_pitch), *temp = col(i_temp);
     const bool scalar = compensator.model().scalar_sensor;
-    for (std::size_t r = 0; r < chunk.rows(); ++r) {
+    for (std::size_t r = pushed; r < pending.rows(); ++r) {
       const double b[3] = {bx[r], by[r], bz[r]};
       for (std::size_t a = 0; a < n_aux; ++a) {
-        aux[a] = chunk.channel(static_cast<std::size_t>(i_aux[a])).values[r];
+        aux[a] = pending.channel(static_cast<std::size_t>(i_aux[a])).values[r];
       }
       const int n = compensator.Push(
           t[r], b, scalar && f ? f[r] : kNaN, n_aux ? aux.data() : nullptr,
@@ -259,7 +244,38 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
           ready.data());
       collect(n);
     }
+    pushed = pending.rows();
+  };
+  // The sample rate is checked on the first kRateRows samples (or the whole
+  // recording when shorter), whatever the chunk size.
+  constexpr std::size_t kRateRows = 256;
+  bool more = true;
+  while (more) {
+    more = reader.ReadChunk(&chunk, options.chunk_rows) > 0;
+    if (more) pending.Append(chunk);
+    if (!checked) {
+      if (more && pending.rows() < kRateRows) continue;
+      if (pending.rows() == 0) break;
+      CheckRecordingFitsModel(model, pending, file);
+      i_time = pending.Find("time");
+      i_bx = pending.Find("bx");
+      i_by = pending.Find("by");
+      i_bz = pending.Find("bz");
+      i_f = pending.Find("f");
+      i_roll = pending.Find("roll");
+      i_pitch = pending.Find("pitch");
+      if (model.has_sensor() && !model.sensor().temperature_channel().empty()) {
+        i_temp = pending.Find(model.sensor().temperature_channel());
+      }
+      for (std::size_t a = 0; a < n_aux; ++a) {
+        i_aux[a] = pending.Find(model.terms().aux(static_cast<int>(a)));
+      }
+      checked = true;
+    }
+    push_pending();
+    const std::size_t written_before = result.samples;
     write_done();
+    pushed -= result.samples - written_before;
   }
   if (!checked) {
     throw io::InputError(file, 0, 0, "expected samples, found none");
