@@ -373,15 +373,23 @@ void BandPass::Filter(const double* x, std::size_t n, double* y) const {
                                   " is not finite (filter gap-free runs)");
     }
   }
+  // The band-pass rejects a constant exactly (zeros at z = 1) and the
+  // forward-backward filter is linear, so filtering x - x[0] gives the same
+  // output. It is far better conditioned: with a 50000 nT total field at
+  // 100 Hz the poles sit within 0.004 of z = 1 and rounding of the raw
+  // level reaches ~1e-8 nT in the output, against ~1e-11 nT after the shift
+  // (measured against a long-double filter with scipy_butterworth.py).
+  const double level = x[0];
   // Odd extension (scipy.signal._arraytools.odd_ext): 2 x[0] - x[pad..1]
   // before, 2 x[n-1] - x[n-2..n-1-pad] after.
   const std::size_t pad = pad_length_;
   std::vector<double> ext(n + 2 * pad);
+  for (std::size_t i = 0; i < n; ++i) ext[pad + i] = x[i] - level;
+  const double first = ext[pad], last = ext[pad + n - 1];
   for (std::size_t i = 0; i < pad; ++i) {
-    ext[i] = 2 * x[0] - x[pad - i];
-    ext[pad + n + i] = 2 * x[n - 1] - x[n - 2 - i];
+    ext[i] = 2 * first - ext[pad + pad - i];
+    ext[pad + n + i] = 2 * last - ext[pad + n - 2 - i];
   }
-  std::copy(x, x + n, ext.begin() + pad);
 
   std::vector<std::array<double, 2>> zi(zi_.size());
   const double x0 = ext.front();

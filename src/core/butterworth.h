@@ -12,8 +12,10 @@
 //
 // Filtering is always done with second-order sections: the expanded (b, a)
 // form of an 8-pole band-pass with a 0.1 Hz corner at 100 Hz has poles
-// within ~1e-2 of z = 1 and its polynomial coefficients lose most of their
-// significant digits, so TransferFunction() is for coefficient checks only.
+// within 0.004 of z = 1, and rounding its polynomial coefficients moves a
+// pole outside the unit circle (SciPy's own filtfilt(b, a) diverges there;
+// measured with tests/reference/scipy_butterworth.py), so TransferFunction()
+// is for coefficient checks only.
 
 #include <array>
 #include <cstddef>
@@ -47,8 +49,10 @@ class BandPass {
   // (padtype='odd', padlen = 3 * (2 * sections + 1 - (number of sections
   // whose b2 and a2 are both zero)), i.e. 3 * (2*order + 1) for the
   // band-pass). Input must be finite and at least min_length() samples;
-  // shorter input throws std::invalid_argument (callers skip such segments).
-  // y may alias x.
+  // shorter input throws std::invalid_argument (callers skip such segments),
+  // as does a non-finite sample (use FilterWithGaps). The first sample is
+  // subtracted before filtering (same output, far less rounding on a
+  // 50000 nT field). y may alias x.
   std::vector<double> Filter(const std::vector<double>& x) const;
   void Filter(const double* x, std::size_t n, double* y) const;
 
