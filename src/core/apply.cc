@@ -1,6 +1,7 @@
 #include "src/core/apply.h"
 
 #include <algorithm>
+#include <exception>
 #include <cmath>
 #include <limits>
 #include <sstream>
@@ -246,16 +247,23 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
     }
     pushed = pending.rows();
   };
-  // The sample rate is checked on the first kRateRows samples (or the whole
-  // recording when shorter), whatever the chunk size.
-  constexpr std::size_t kRateRows = 256;
+  // The sample rate is checked on the first rate_check_rows samples (or the
+  // whole recording when shorter), whatever the chunk size.
+  const std::size_t rate_rows = std::max<std::size_t>(options.rate_check_rows, 3);
   bool more = true;
+  std::exception_ptr fault;
   while (more) {
-    more = reader.ReadChunk(&chunk, options.chunk_rows) > 0;
+    try {
+      more = reader.ReadChunk(&chunk, options.chunk_rows) > 0;
+    } catch (const io::InputError&) {
+      // Deliver what was accepted before the fault, then report it.
+      fault = std::current_exception();
+      more = false;
+    }
     if (more) pending.Append(chunk);
     if (!checked) {
-      if (more && pending.rows() < kRateRows) continue;
-      if (pending.rows() == 0) break;
+      if (more && pending.rows() < rate_rows) continue;
+      if (pending.rows() == 0 || (fault && pending.rows() < 3)) break;
       CheckRecordingFitsModel(model, pending, file);
       i_time = pending.Find("time");
       i_bx = pending.Find("bx");
@@ -278,11 +286,13 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
     pushed -= result.samples - written_before;
   }
   if (!checked) {
+    if (fault) std::rethrow_exception(fault);
     throw io::InputError(file, 0, 0, "expected samples, found none");
   }
   collect(compensator.Flush(ready.data()));
   write_done();
   writer.Close();
+  if (fault) std::rethrow_exception(fault);
   return result;
 }
 

@@ -55,6 +55,10 @@ std::vector<io::ChannelInfo> OutputSchema(
 
 struct ApplyOptions {
   std::size_t chunk_rows = 1u << 16;
+  // Samples read before the sample rate is checked against the model's
+  // (fewer when the recording is shorter). A stream uses a small number so
+  // that output starts at once.
+  std::size_t rate_check_rows = 256;
   // Called after each written chunk with the samples done so far.
   std::function<void(std::size_t samples)> progress;
 };
@@ -66,7 +70,9 @@ struct ApplyResult {
 };
 
 // Streams reader -> compensation -> writer. The writer must have been
-// created with OutputSchema(reader.channels()).
+// created with OutputSchema(reader.channels()). When the reader throws on
+// bad input, every sample accepted before it is still compensated, written
+// and the writer closed; then the error is rethrown.
 ApplyResult ApplyChunked(const proto::CompensationModel& model,
                          io::RecordingReader& reader,
                          io::RecordingWriter& writer,

@@ -168,5 +168,35 @@ TEST(ApplyTest, RefusesAModelFileFromAnUnknownSchemaVersion) {
                io::InputError);
 }
 
+// Gives two chunks, then fails as a reader does on a bad line.
+class FailingReader : public io::RecordingReader {
+ public:
+  explicit FailingReader(const io::Table& t) : inner_(t, "bad.csv") {}
+  const std::vector<io::ChannelInfo>& channels() const override {
+    return inner_.channels();
+  }
+  std::size_t ReadChunk(io::Table* chunk, std::size_t max_rows) override {
+    if (++calls_ > 2) throw io::InputError("bad.csv", 42, 3, "expected a number");
+    return inner_.ReadChunk(chunk, max_rows);
+  }
+  const std::string& path() const override { return inner_.path(); }
+
+ private:
+  io::TableReader inner_;
+  int calls_ = 0;
+};
+
+TEST(ApplyTest, BadInputStillDeliversEverySampleAcceptedBeforeIt) {
+  const io::Table rec = TestRecording(1000, 10.0);
+  FailingReader reader(rec);
+  io::TableWriter writer(OutputSchema(rec.Schema()));
+  ApplyOptions options;
+  options.chunk_rows = 300;
+  EXPECT_THROW(ApplyChunked(TestModel(0.0), reader, writer, options),
+               io::InputError);
+  ASSERT_EQ(writer.table().rows(), 600u);
+  EXPECT_EQ(writer.table().Column("time")[599], rec.Column("time")[599]);
+}
+
 }  // namespace
 }  // namespace fluxtrim::core
