@@ -131,8 +131,13 @@ void PrintText(const models::MagneticModel& model, const FieldArgs& args,
   std::cout << "  (inclination positive down; declination "
             << Format("%.2f", std::fabs(f.decl_deg))
             << (f.decl_deg < 0 ? " deg west" : " deg east")
-            << " of true north)\n"
-            << "The model holds the core field only: crustal anomalies, "
+            << " of true north)\n";
+  if (std::fabs(args.lat_deg) == 90.0) {
+    std::cout << "  At the geographic pole \"north\" is taken along the "
+                 "meridian of the longitude given; declination turns with "
+                 "it.\n";
+  }
+  std::cout << "The model holds the core field only: crustal anomalies, "
                "diurnal variation and storms come on top.\n";
 }
 

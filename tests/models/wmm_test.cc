@@ -90,7 +90,7 @@ TEST(WmmTest, ReproducesAllHundredPublishedWmm2025TestValues) {
   std::printf(
       "WMM2025 published test values, worst |error| over %zu points:\n"
       "  X %.2e nT, Y %.2e nT, Z %.2e nT, H %.2e nT, F %.2e nT,\n"
-      "  I %.4f deg, D %.4f deg (published I, D rounded to 0.01 deg)\n",
+      "  I %.5f deg, D %.5f deg (published I, D rounded to 0.01 deg)\n",
       points.size(), worst[0], worst[1], worst[2], worst[3], worst[4], worst[5],
       worst[6]);
 }
