@@ -10,6 +10,7 @@
 #include <unordered_set>
 #include <utility>
 
+#include "io/channel_map.h"
 #include "io/error.h"
 #include "io/fortran_format.h"
 
@@ -441,35 +442,35 @@ struct Gdf2Reader::Impl {
     row.resize(channels.size());
   }
 
+  // The same --map rules as every other format (io/channel_map.h): swaps
+  // work, an unmapped field that carries a mapped-to name steps aside as
+  // <name>_orig.
   void ApplyRename() {
-    std::unordered_map<std::string, std::size_t> index;
-    for (std::size_t i = 0; i < channels.size(); ++i) {
-      index[Lower(channels[i].name)] = i;
-    }
-    std::vector<std::pair<std::size_t, std::string>> renames;
     for (const auto& [canonical, column] : options.rename) {
-      auto it = index.find(Lower(column));
-      if (it == index.end()) {
-        bool text = false;
-        for (const std::string& t : skipped_text) {
-          text = text || EqualsIgnoreCase(t, column);
+      for (const std::string& t : skipped_text) {
+        if (EqualsIgnoreCase(t, column)) {
+          throw InputError(dfn_name, "--map " + canonical + "=" + column,
+                           "field " + column +
+                               " is text (A format) and cannot be read as a "
+                               "channel");
         }
-        throw InputError(
-            dfn_name, "mapping " + canonical + "=" + column,
-            text ? "field " + column +
-                       " is text (A format) and cannot be read as a channel"
-                 : "the .dfn defines no numeric field " + column +
-                       "; fields: " + ListNames(channels));
       }
-      renames.emplace_back(it->second, canonical);
     }
-    for (const auto& [i, canonical] : renames) channels[i].name = canonical;
+    std::vector<std::string> names;
+    names.reserve(channels.size());
+    for (const ChannelInfo& c : channels) names.push_back(c.name);
+    try {
+      names = MapChannelNames(names, options.rename);
+    } catch (const std::invalid_argument& e) {
+      throw InputError(dfn_name, "data record definition", e.what());
+    }
     std::unordered_set<std::string> seen;
-    for (const ChannelInfo& c : channels) {
-      if (!seen.insert(Lower(c.name)).second) {
-        throw InputError(dfn_name, "field " + c.name,
-                         "two channels are named " + Quote(c.name) +
-                             " after the --map renaming; map each name once");
+    for (std::size_t i = 0; i < channels.size(); ++i) {
+      channels[i].name = names[i];
+      if (!seen.insert(Lower(names[i])).second) {
+        throw InputError(dfn_name, "--map",
+                         "two channels are named " + Quote(names[i]) +
+                             " after renaming; map each name once");
       }
     }
   }
@@ -483,10 +484,11 @@ struct Gdf2Reader::Impl {
         if (EqualsIgnoreCase(channels[i].name, r)) found = static_cast<int>(i);
       }
       if (found < 0) {
-        throw InputError(dfn_name, "channel " + r,
-                         "required channel '" + r +
-                             "' is not defined (map a field with --map " + r +
-                             "=FIELD); numeric fields: " + ListNames(channels));
+        throw InputError(dfn_name, "data record definition",
+                         "missing channel '" + r +
+                             "' (required); the file has: " +
+                             ListNames(channels) + " (--map " + r +
+                             "=FIELD reads another field as " + r + ")");
       }
       if (EqualsIgnoreCase(r, "time")) time_index = found;
     }

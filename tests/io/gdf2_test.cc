@@ -212,6 +212,25 @@ TEST(Gdf2Reader, DeliversChunksOfAtMostTheRequestedRows) {
   EXPECT_EQ(chunk.rows(), 0u);
 }
 
+TEST(Gdf2Reader, MapsFieldsLikeTheOtherFormats) {
+  // io/channel_map.h: a swap works; an unmapped field carrying a mapped-to
+  // name steps aside as <name>_orig.
+  const std::string dfn =
+      "DEFN 1 ST=RECD,RT=;TIME:F6.1;FIDTIME:F6.1;BX:F8.1;BY:F8.1\n";
+  const std::string dat = "   1.0  10.0    11.0    22.0\n";
+  std::istringstream d(dfn), a(dat);
+  ReadOptions options;
+  options.rename["time"] = "FIDTIME";
+  options.rename["bx"] = "BY";
+  options.rename["by"] = "BX";
+  Gdf2Reader reader(d, "m.dfn", a, "m.dat", options);
+  const Table t = ReadAll(reader);
+  EXPECT_EQ(t.channel(0).info.name, "TIME_orig");
+  EXPECT_EQ(t.Column("time")[0], 10.0);
+  EXPECT_EQ(t.Column("bx")[0], 22.0);
+  EXPECT_EQ(t.Column("by")[0], 11.0);
+}
+
 TEST(Gdf2Reader, AcceptsBackwardTimesWhenAsked) {
   const std::string dfn = "DEFN 1 ST=RECD,RT=;TIME:F6.1;MAG:F8.1\n";
   const std::string dat = "   1.0 50000.0\n   1.0 50001.0\n   0.5 50002.0\n";
