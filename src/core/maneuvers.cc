@@ -114,6 +114,7 @@ struct Counters {
   std::size_t turns = 0;       // segments dropped as turns
   std::size_t short_ones = 0;  // segments dropped as too short
   double max_rms_deg = 0;      // largest windowed deviation RMS seen
+  std::size_t by_amplitude = 0;  // kinds told apart by amplitude only
 };
 
 // Time where the series e crosses `level` between samples i-1 and i.
@@ -146,6 +147,8 @@ void SegmentPiece(const Piece& piece, double rms_threshold_deg,
   std::array<std::vector<double>, kKinds> energy;
   for (auto& e : energy) e.assign(n, 0.0);
   std::vector<int> label(n, kNone);
+  // Samples whose kind was decided by amplitude, not direction.
+  std::vector<char> by_amplitude(n, 0);
   const double typical[kKinds] = {options.typical_pitch_deg,
                                   options.typical_roll_deg,
                                   options.typical_yaw_deg};
@@ -185,6 +188,7 @@ void SegmentPiece(const Piece& piece, double rms_threshold_deg,
       if (k == best || share[k] < share[best] - options.ambiguity_share) {
         continue;
       }
+      by_amplitude[i] = 1;
       const double score = std::abs(std::log(amplitude[k] / typical[k]));
       if (score < chosen_score) {
         chosen = k;
@@ -273,12 +277,24 @@ void SegmentPiece(const Piece& piece, double rms_threshold_deg,
     }
     const double var = stt - st * st / count;
     const double rate = var > 0 ? (sth - st * sh / count) / var : 0.0;
+    // Roll-in and roll-out of a turn look like a short oscillation next to a
+    // heading change: compare the heading half a window before and after.
+    const std::size_t margin = std::max<std::size_t>(half, 1);
+    const std::size_t before = seg.begin >= margin ? seg.begin - margin : 0;
+    const std::size_t after = std::min(n - 1, seg.end - 1 + margin);
+    const double across =
+        std::abs(piece.heading_deg[after] - piece.heading_deg[before]);
     if (stats.spread_deg > options.max_heading_spread_deg ||
-        std::abs(rate) > options.max_turn_rate_deg_s) {
+        std::abs(rate) > options.max_turn_rate_deg_s ||
+        across > options.max_heading_spread_deg) {
       ++counters->turns;
       continue;
     }
     seg.heading_deg = stats.mean_deg;
+    const std::size_t ambiguous = static_cast<std::size_t>(
+        std::count(by_amplitude.begin() + seg.begin,
+                   by_amplitude.begin() + seg.end, 1));
+    if (2 * ambiguous > count) ++counters->by_amplitude;
     out->push_back(seg);
   }
 }
@@ -610,6 +626,15 @@ ManeuverDetection DetectManeuvers(const io::Table& recording,
         "heading is magnetic, and on legs near magnetic north/south (yaw vs "
         "roll) or east/west (yaw vs pitch) the kind is inferred from the "
         "amplitude; pass --segments to state them");
+  }
+  if (counters.by_amplitude > 0) {
+    result.notes.push_back(
+        std::to_string(counters.by_amplitude) +
+        " maneuver kinds were told apart by amplitude only (typical pitch " +
+        Fixed(options.typical_pitch_deg, 0) + ", roll " +
+        Fixed(options.typical_roll_deg, 0) + ", yaw " +
+        Fixed(options.typical_yaw_deg, 0) +
+        " deg); check them or pass --segments");
   }
   return result;
 }

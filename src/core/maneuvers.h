@@ -97,7 +97,12 @@ struct ManeuverDetection {
 // rotation axes of roll, pitch and yaw (body x, y, z, assuming near-level
 // flight) seen in that plane are x - c0 c0_x, etc. Heading is the magnetic
 // heading atan2(-c0_y, c0_x) of the running mean, which is free of the
-// tilt-induced swing of the instantaneous value.
+// tilt-induced swing of the instantaneous value. Limits of this path: on
+// legs along magnetic north/south a yaw moves the field like a roll, on
+// east/west legs like a pitch; the kind then comes from the amplitude
+// (typical_*_deg), which fails when the two look alike (e.g. pitch and yaw
+// of equal amplitude at 45 deg inclination); such segments are counted in
+// the notes. With --segments the operator states them instead.
 // Both paths: the windowed second moments of w give, for each kind, the
 // share of the deviation energy along its axis; each sample takes the
 // dominant kind (see the options), runs of one kind are merged and trimmed

@@ -55,9 +55,15 @@ double AngleDistance(double a, double b) {
   return d > 180 ? 360 - d : d;
 }
 
+// How the pilot flies the maneuvers.
+struct Style {
+  double ramp_periods = 0;  // amplitude builds up / dies down over this
+  double coupling = 0;      // roll <-> yaw cross-coupling (adverse yaw)
+};
+
 // A box of pitch, roll and yaw at each heading, 90 deg turns between legs.
 Flight MakeBox(const std::vector<double>& legs_deg, double rate_hz,
-               unsigned seed, bool maneuvers = true) {
+               unsigned seed, bool maneuvers = true, Style style = {}) {
   Flight f;
   std::mt19937 rng(seed);
   std::normal_distribution<double> turbulence(0.0, 0.2);  // deg
@@ -79,11 +85,21 @@ Flight MakeBox(const std::vector<double>& legs_deg, double rate_hz,
                       double period_s, int cycles) {
     const double start = now;
     const double end = now + period_s * cycles;
+    const double ramp_s = style.ramp_periods * period_s;
     while (now < end - 1e-9) {
-      const double a = amplitude_deg * std::sin(2 * kPi * (now - start) / period_s);
-      emit(kind == ManeuverKind::kRoll ? a : 0,
-           kind == ManeuverKind::kPitch ? a : 0,
-           heading + (kind == ManeuverKind::kYaw ? a : 0));
+      const double tau = now - start;
+      const double envelope =
+          ramp_s > 0 ? std::min({1.0, tau / ramp_s, (end - now) / ramp_s})
+                     : 1.0;
+      const double a =
+          envelope * amplitude_deg * std::sin(2 * kPi * tau / period_s);
+      const double roll = kind == ManeuverKind::kRoll ? a
+                          : kind == ManeuverKind::kYaw ? style.coupling * a
+                                                        : 0;
+      const double yaw = kind == ManeuverKind::kYaw ? a
+                         : kind == ManeuverKind::kRoll ? -style.coupling * a
+                                                        : 0;
+      emit(roll, kind == ManeuverKind::kPitch ? a : 0, heading + yaw);
     }
     f.truth.push_back({kind, Wrap(heading), start, end});
   };
@@ -204,6 +220,33 @@ TEST(DetectManeuvers, FindsSurveyLineBoxAt20HzWithItsHeadings) {
   ExpectMatchesTruth(DetectManeuvers(AttitudeTable(f)), f.truth);
 }
 
+TEST(DetectManeuvers, FindsBoxOfAPilotWhoRampsAndCouplesTheMotion) {
+  // Amplitude builds up over the first period and dies down over the last;
+  // roll brings 30 % adverse yaw and yaw 30 % roll. Where such a maneuver
+  // starts is defined only to within the ramp, so the boundary tolerance is
+  // one period of the slowest maneuver (8 s) here.
+  constexpr double kRampBoundaryTolS = 8.0;
+  Style style;
+  style.ramp_periods = 1;
+  style.coupling = 0.3;
+  const Flight f = MakeBox({10, 100, 190, 280}, 10.0, 9, true, style);
+  const ManeuverDetection found = DetectManeuvers(AttitudeTable(f));
+  ASSERT_EQ(found.maneuvers.size(), f.truth.size());
+  for (std::size_t i = 0; i < f.truth.size(); ++i) {
+    EXPECT_EQ(found.maneuvers[i].kind, f.truth[i].kind) << i;
+    EXPECT_LE(AngleDistance(found.maneuvers[i].heading_deg,
+                            f.truth[i].heading_deg),
+              kHeadingTolDeg);
+    EXPECT_NEAR(found.maneuvers[i].start_s, f.truth[i].start_s,
+                kRampBoundaryTolS);
+    EXPECT_NEAR(found.maneuvers[i].end_s, f.truth[i].end_s,
+                kRampBoundaryTolS);
+    // Inside the flown span, never outside it by more than rounding.
+    EXPECT_GE(found.maneuvers[i].start_s, f.truth[i].start_s - 0.5) << i;
+    EXPECT_LE(found.maneuvers[i].end_s, f.truth[i].end_s + 0.5) << i;
+  }
+}
+
 TEST(DetectManeuvers, LevelFlightWithTurnsHasNoManeuvers) {
   const Flight f = MakeBox({0, 90, 180, 270}, 10.0, 3, /*maneuvers=*/false);
   const ManeuverDetection found = DetectManeuvers(AttitudeTable(f));
@@ -238,6 +281,13 @@ TEST(DetectManeuvers, FindsBoxFromFluxgateAloneAtCardinalHeadings) {
       DetectManeuvers(FluxgateTable(f, 19000, 45000, 6));
   EXPECT_EQ(found.source, "fluxgate heading");
   ExpectMatchesTruth(found, f.truth);
+  // On north/south legs yaw and roll move the field alike; the result says
+  // that their kinds came from the amplitude.
+  bool warned = false;
+  for (const std::string& note : found.notes) {
+    warned = warned || note.find("by amplitude only") != std::string::npos;
+  }
+  EXPECT_TRUE(warned);
 }
 
 TEST(DetectManeuvers, FindsBoxFromFluxgateAloneOnSurveyLineHeadings) {
