@@ -171,7 +171,8 @@ Spectrum AmplitudeSpectrum(const std::vector<double>& series,
     const double one_sided = edge ? 1.0 : 2.0;
     const double mean_power = power[k] / segments;
     out.frequency_hz[k] = static_cast<double>(k) * rate / static_cast<double>(m);
-    out.amplitude[k] = std::sqrt(one_sided * mean_power) / sum_w;
+    // |X_k| = (A/2) sum w for an on-bin sinusoid of amplitude A.
+    out.amplitude[k] = one_sided * std::sqrt(mean_power) / sum_w;
     out.density[k] = std::sqrt(one_sided * mean_power / (rate * sum_w2));
   }
   out.usable = true;

@@ -48,9 +48,10 @@ struct SpectrumOptions {
 struct Spectrum {
   std::vector<double> frequency_hz;  // k * rate / m
   // Peak amplitude, same unit as the series (nT): a sinusoid A cos(2 pi f t)
-  // with f on a bin reads A at that bin. amplitude = sqrt(2 P_k) for
+  // with f on a bin reads A at that bin. amplitude = 2 sqrt(P_k) for
   // interior bins and sqrt(P_k) at k = 0 and at Nyquist (even m), with
-  // P_k = mean |X_k|^2 / (sum w)^2 the two-sided power per bin.
+  // P_k = mean |X_k|^2 / (sum w)^2 the two-sided power per bin (so the
+  // interior value is sqrt(2 x scipy's one-sided scaling='spectrum')).
   std::vector<double> amplitude;
   // One-sided amplitude spectral density, unit/sqrt(Hz) (nT/sqrt(Hz)):
   // sqrt of scipy's scaling='density', i.e. mean |X_k|^2 / (rate sum w^2),

@@ -94,6 +94,10 @@ std::string FormatTickLabel(double value, double step) {
     const int digits = std::clamp(value_exponent - step_exponent, 0, 15);
     const double mantissa = value / std::pow(10.0, value_exponent);
     std::string m = Format("%.*f", mantissa, digits);
+    if (m.find('.') != std::string::npos) {  // "1.0" -> "1"
+      while (m.back() == '0') m.pop_back();
+      if (m.back() == '.') m.pop_back();
+    }
     return ReplaceLeadingMinus(m) + "\xC3\x97" + PowerOfTenLabel(value_exponent);
   }
   const int decimals = std::clamp(-step_exponent, 0, 15);
