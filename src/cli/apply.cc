@@ -8,6 +8,7 @@
 #include "src/cli/commands.h"
 #include "src/cli/common.h"
 #include "src/core/apply.h"
+#include "src/core/apply_report.h"
 #include "src/core/apply_summary.h"
 #include "src/core/cautions.h"
 
@@ -78,6 +79,11 @@ int RunApply(const ApplyArgs& args) {
         core::SummariseApply(model, out, args.recording);
     std::cout << core::FormatApplySummary(summary);
     if (!args.summary_json.empty()) WriteJson(args.summary_json, summary.proto);
+    if (!args.report.empty()) {
+      core::WriteReport(args.report, core::ApplyReportData(model, args.model,
+                                                           out, summary));
+      std::cout << "Report: " << args.report << "\n";
+    }
   }
   return 0;
 }
@@ -107,6 +113,8 @@ void AddApplyCommand(CLI::App& app, int* exit_code) {
                   "Write a JSON summary (band-passed RMS before/after, IR, "
                   "FOM table when the recording has maneuvers, heading "
                   "error of reciprocal lines)");
+  sub->add_option("--report", args->report,
+                  "Write a self-contained HTML report (PATH.html)");
   sub->add_option("--chunk-rows", args->chunk_rows,
                   "Samples per chunk (memory bound)")
       ->check(CLI::Range(std::size_t{1}, std::size_t{1} << 26))
