@@ -68,7 +68,7 @@ PlanState EvaluateSegment(const PlanSegment& g, double tau) {
   const double tilt = g.tilt0 + dtilt * st.s;
   const double tilt_rate = dtilt * st.ds / d;
   p.tilt = tilt;
-  p.speed_mps = g.speed_mps;
+  p.speed_mps = g.stop ? 0.0 : g.speed_mps;
   p.kind = g.kind;
   p.reference_heading = g.reference_heading;
 
@@ -179,6 +179,7 @@ void AppendTurn(ManeuverPlan* plan, double delta, double speed_mps,
   s.tilt0 = s.tilt1 = plan->end_tilt();
   s.speed_mps = speed_mps;
   s.bank = turn.bank;
+  s.stop = turn.stop;
   plan->Append(s);
 }
 
@@ -215,7 +216,9 @@ ManeuverPlan BuildCompensationBox(const CompensationBoxOptions& o) {
   return plan;
 }
 
-double TwoQuarterTurnSpacing_m(double duration_s, double speed_mps) {
+double TwoQuarterTurnSpacing_m(double duration_s, double speed_mps,
+                               bool stop) {
+  if (stop) return 0.0;
   const double quarter = 0.5 * kPi;
   const double side = Simpson(
       [quarter](double x) { return std::sin(quarter * SmoothStep(x).s); },
@@ -231,7 +234,8 @@ ManeuverPlan BuildSurveyLines(const SurveyLinesOptions& o) {
   AppendStraight(&plan, o.lead_in_s, o.speed_mps);
   const double quarter = 0.5 * kPi;
   const double turn_s = TurnDuration(quarter, o.turn);
-  const double turns_m = TwoQuarterTurnSpacing_m(turn_s, o.speed_mps);
+  const double turns_m =
+      TwoQuarterTurnSpacing_m(turn_s, o.speed_mps, o.turn.stop);
   const double transit_m = std::max(0.0, o.line_spacing_m - turns_m);
   double side = o.first_turn_right ? 1.0 : -1.0;
   for (int line = 0; line < o.line_count; ++line) {

@@ -53,6 +53,10 @@ struct PlanSegment {
   double tilt0 = 0.0, tilt1 = 0.0;              // rad
   double speed_mps = 0.0;                       // ground speed
   bool bank = false;                            // coordinated-turn bank
+  // Turn on the spot (multirotor drones): speed 0 throughout the segment.
+  // The speed change at its ends is taken as instantaneous; it moves the
+  // track only (position, hence main field and geology), not the attitude.
+  bool stop = false;
   double amplitude = 0.0;  // rad, pitch/roll/yaw maneuver amplitude
   double period_s = 0.0;   // of the maneuver
 };
@@ -97,6 +101,7 @@ struct TurnOptions {
   double max_turn_rate = 3.0 * 3.14159265358979323846 / 180.0;  // rad/s, peak
   double min_turn_s = 5.0;  // shortest turn
   bool bank = true;         // coordinated turns (aircraft, helicopters)
+  bool stop = false;        // stop and turn on the spot (multirotors)
 };
 
 // Appends a turn from the plan's end course by delta_course (rad; positive
@@ -151,18 +156,24 @@ struct SurveyLinesOptions {
 };
 ManeuverPlan BuildSurveyLines(const SurveyLinesOptions& options);
 
-// Sideways displacement of a 90 deg turn (duration_s at speed_mps) plus its
-// forward displacement: the spacing two such turns give without transit.
-double TwoQuarterTurnSpacing_m(double duration_s, double speed_mps);
+// Sideways displacement of a 90 deg turn (duration_s at speed_mps; zero
+// when the platform turns on the spot) plus its forward displacement: the
+// spacing two such turns give without transit.
+double TwoQuarterTurnSpacing_m(double duration_s, double speed_mps,
+                               bool stop);
 
 // (c) Drone calibration: hover, then at each tilt a transition to the tilt
 // and a full rotation in yaw (turns_per_tilt turns at mean_yaw_rate,
-// alternating direction when asked) while drifting along drift_course, so
-// that the field direction seen by the body sweeps a wide band of the
-// sphere; finally back to level and hover.
+// alternating direction when asked) while drifting along drift_course;
+// finally back to level and hover. The tilt keeps its direction in the
+// Earth frame (towards the drift course; negative: away from it) while the
+// body yaws under it, so the angle between the field and the body z axis is
+// set by the tilt and its sign and the yaw sweeps the rest: tilts of both
+// signs make the field direction cover a wide band of the sphere.
 struct DroneRotationOptions {
-  std::vector<double> tilts = {0.0, 0.2617993877991494,
-                               0.5235987755982988};  // rad: 0, 15, 30 deg
+  // rad: 0, 15, -15, 30, -30 deg.
+  std::vector<double> tilts = {0.0, 0.2617993877991494, -0.2617993877991494,
+                               0.5235987755982988, -0.5235987755982988};
   double mean_yaw_rate = 0.5235987755982988;         // rad/s (30 deg/s)
   double turns_per_tilt = 1.0;
   double transition_s = 4.0;

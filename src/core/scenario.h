@@ -70,6 +70,7 @@ struct SimulatedFlight {
   std::string platform_kind;           // "aircraft", "helicopter", "drone",
                                        // "ground_vehicle"
   bool has_scalar_sensor = false;
+  double sample_rate_hz = 0.0;         // nominal
   std::uint64_t seed = 0;              // seed actually used
 };
 
