@@ -13,6 +13,12 @@
 #include "io/error.h"
 
 namespace fluxtrim::io {
+namespace {
+
+// Bytes asked of a source by the first read (see InputBuffer::step_).
+constexpr std::size_t kFirstReadBytes = std::size_t{16} << 10;
+
+}  // namespace
 
 FdSource::~FdSource() {
   if (owned_ && fd_ >= 0) ::close(fd_);
@@ -63,7 +69,9 @@ bool IstreamSource::Ready() {
 
 InputBuffer::InputBuffer(std::unique_ptr<ByteSource> source,
                          std::size_t read_size)
-    : source_(std::move(source)), read_size_(std::max<std::size_t>(read_size, 16)) {}
+    : source_(std::move(source)),
+      read_size_(std::max<std::size_t>(read_size, 16)),
+      step_(std::min(kFirstReadBytes, read_size_)) {}
 
 bool InputBuffer::Fill(std::size_t max_keep) {
   if (at_end_) return false;
@@ -72,7 +80,7 @@ bool InputBuffer::Fill(std::size_t max_keep) {
     throw std::length_error("more than " + std::to_string(max_keep) +
                             " bytes would have to be held at once");
   }
-  const std::size_t want = std::min(read_size_, max_keep - kept);
+  const std::size_t want = std::min(step_, max_keep - kept);
   if (capacity_ - end_ < want) {
     if (capacity_ >= kept + want) {
       if (kept > 0) std::memmove(buf_.get(), buf_.get() + begin_, kept);
@@ -86,11 +94,13 @@ bool InputBuffer::Fill(std::size_t max_keep) {
     begin_ = 0;
     end_ = kept;
   }
-  const std::size_t got = source_->Read(buf_.get() + end_, capacity_ - end_);
+  const std::size_t room = capacity_ - end_;
+  const std::size_t got = source_->Read(buf_.get() + end_, room);
   if (got == 0) {
     at_end_ = true;
     return false;
   }
+  if (got == room && step_ < read_size_) step_ = std::min(2 * step_, read_size_);
   end_ += got;
   return true;
 }

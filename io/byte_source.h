@@ -60,8 +60,8 @@ class IstreamSource : public ByteSource {
 // but not yet consumed; offset() is the stream position of data()[0].
 class InputBuffer {
  public:
-  // read_size: bytes asked of the source per Fill() (the buffer grows past it
-  // only for a line or message longer than that).
+  // read_size: most bytes asked of the source per Fill() (the buffer grows
+  // past it only for a line or message longer than that).
   explicit InputBuffer(std::unique_ptr<ByteSource> source,
                        std::size_t read_size = std::size_t{1} << 20);
 
@@ -85,6 +85,9 @@ class InputBuffer {
  private:
   std::unique_ptr<ByteSource> source_;
   std::size_t read_size_;
+  // Bytes asked per Read(): starts small (a short stream or a fuzzer input
+  // costs little) and doubles up to read_size_ while reads come back full.
+  std::size_t step_;
   std::unique_ptr<char[]> buf_;
   std::size_t capacity_ = 0;
   std::size_t begin_ = 0;

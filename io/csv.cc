@@ -4,6 +4,7 @@
 #include <cerrno>
 #include <charconv>
 #include <cmath>
+#include <cstdio>
 #include <cstring>
 #include <fstream>
 #include <iostream>
@@ -93,6 +94,17 @@ std::vector<HeaderField> SplitQuoted(std::string_view line,
       field.text = std::string(Trim(line.substr(i, end - i)));
       i = end;
     }
+    for (std::size_t k = 0; k < field.text.size(); ++k) {
+      const auto c = static_cast<unsigned char>(field.text[k]);
+      if ((c < 0x20 && c != '\t') || c == 0x7f) {
+        char code[8];
+        std::snprintf(code, sizeof code, "0x%02x", c);
+        throw InputError(file, line_number, field.column,
+                         std::string("control character ") + code +
+                             " in a name: expected text (is this a CSV "
+                             "file?)");
+      }
+    }
     fields.push_back(std::move(field));
     if (i >= line.size()) break;
     ++i;  // the comma
@@ -102,10 +114,12 @@ std::vector<HeaderField> SplitQuoted(std::string_view line,
 
 // CSV quoting for names and units written by CsvWriter.
 std::string QuoteIfNeeded(const std::string& s) {
+  // Quote what the reader would otherwise split, trim, strip or take for a
+  // comment or a byte order mark.
   const bool needs =
-      s.find_first_of(",\"") != std::string::npos ||
+      s.find_first_of(",\"\r") != std::string::npos ||
       (!s.empty() && (IsBlank(s.front()) || IsBlank(s.back()) ||
-                      s.front() == '#'));
+                      s.front() == '#' || s.front() == '\xEF'));
   if (!needs) return s;
   std::string out = "\"";
   for (char c : s) {
@@ -622,10 +636,13 @@ void CsvWriter::Write(const Table& chunk) {
   }
   const std::size_t rows = chunk.rows();
   const std::size_t row_max = schema_.size() * (kMaxNumberChars + 1) + 1;
-  if (buffer_.size() < kWriteBufferBytes + row_max) {
-    buffer_.resize(kWriteBufferBytes + row_max);
-  }
-  if (used_ >= kWriteBufferBytes) Drain();  // e.g. a long comment header
+  // Collect up to kWriteBufferBytes of text per write to the stream; a small
+  // table gets a small buffer.
+  const std::size_t want =
+      std::min(kWriteBufferBytes, std::max(used_, rows * row_max)) + row_max;
+  if (buffer_.size() < want) buffer_.resize(want);
+  const std::size_t drain_at = buffer_.size() - row_max;
+  if (used_ >= drain_at) Drain();  // e.g. a long comment header
   char* const limit = buffer_.data() + buffer_.size();
   for (std::size_t r = 0; r < rows; ++r) {
     char* out = buffer_.data() + used_;
@@ -636,7 +653,7 @@ void CsvWriter::Write(const Table& chunk) {
     }
     *out++ = '\n';
     used_ = static_cast<std::size_t>(out - buffer_.data());
-    if (used_ >= kWriteBufferBytes) Drain();
+    if (used_ >= drain_at) Drain();
   }
 }
 

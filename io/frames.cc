@@ -11,6 +11,8 @@
 #include <stdexcept>
 #include <utility>
 
+#include <google/protobuf/stubs/logging.h>
+
 #include "io/channel_map.h"
 #include "io/error.h"
 #include "proto/recording.pb.h"
@@ -63,7 +65,10 @@ void FramesReader::Fail(const std::string& message) const {
 
 FramesReader::Status FramesReader::NextMessage(bool block) {
   // Room for the largest message accepted plus its length prefix.
-  const std::size_t max_keep = options_.max_frame_bytes + kMaxVarintBytes;
+  // protobuf parses at most INT_MAX bytes at once.
+  const std::size_t limit = std::min<std::size_t>(
+      options_.max_frame_bytes, std::numeric_limits<int>::max());
+  const std::size_t max_keep = limit + kMaxVarintBytes;
   for (;;) {
     const auto* d = reinterpret_cast<const unsigned char*>(input_.data());
     const std::size_t n = input_.size();
@@ -88,11 +93,11 @@ FramesReader::Status FramesReader::NextMessage(bool block) {
            "10 bytes");
     }
     if (complete) {
-      if (length > options_.max_frame_bytes) {
+      if (length > limit) {
         message_index_ = frame_index_;
         message_offset_ = input_.offset();
         Fail("declared length " + std::to_string(length) +
-             " exceeds the limit " + std::to_string(options_.max_frame_bytes) +
+             " exceeds the limit " + std::to_string(limit) +
              " (corrupt length prefix, or raise the frame size limit)");
       }
       if (n - prefix >= length) {
@@ -135,7 +140,15 @@ void FramesReader::ReadHeader() {
                          std::string(kFramesMagic) + "'");
   }
   proto::RecordingHeader header;
-  if (!header.ParseFromArray(message_data_, static_cast<int>(message_size_))) {
+  bool parsed;
+  {
+    // Keeps protobuf from logging its own complaint (e.g. invalid UTF-8 in a
+    // name) on stderr; the InputError below says what is wrong.
+    google::protobuf::LogSilencer silence;
+    parsed =
+        header.ParseFromArray(message_data_, static_cast<int>(message_size_));
+  }
+  if (!parsed) {
     Fail("not a RecordingHeader message: expected a fluxtrim recording "
          "(.ftrec) starting with magic '" +
          std::string(kFramesMagic) + "'");

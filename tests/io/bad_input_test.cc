@@ -242,6 +242,12 @@ TEST(CsvBadInput, UnterminatedQuoteInTheHeaderIsRejected) {
   EXPECT_TRUE(Contains(e.what(), "unterminated quote"));
 }
 
+TEST(CsvBadInput, ControlCharacterInAHeaderNameIsRejected) {
+  const InputError e = CsvError(std::string("time,b\0x\n0,1\n", 13));
+  EXPECT_EQ(e.column(), 6u);
+  EXPECT_TRUE(Contains(e.what(), "control character 0x00"));
+}
+
 TEST(CsvBadInput, UnitsCommentWithTheWrongCountIsRejected) {
   const InputError e = CsvError("# units: s\ntime,f\n0,1\n");
   EXPECT_EQ(e.line(), 1u);
