@@ -23,25 +23,30 @@ namespace {
 
 constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
 
-// Weight of the prior that holds an undetermined term at 0, relative to
-// sqrt(n) (the data's weight on a unit-RMS column): the term's posterior
-// moves at most 1e-6 of what the data alone would say.
-constexpr double kHoldWeight = 1e3;
+// A held term is fixed at 0 in the solve (an infinitely strong prior,
+// ceres::SubsetManifold). Directions of the term shapes (columns without
+// the Bt factor, de-meaned, unit RMS) with a relative singular value below
+// this were not excited independently by the flight: their Bt-scaled
+// columns then vary only with Bt, i.e. they would fit the total field with
+// itself.
+constexpr double kShapeNullSingularValue = 1e-4;
 // Weight of the gauge constraints of the 18-term set, relative to sqrt(n).
 constexpr double kConstraintWeight = 1e3;
 
 // Plausible magnitude of each kind of coefficient (our judgement of the
 // physics, for aircraft, drones and vehicles; generous on purpose): a
 // permanent field beyond 20,000 nT at the sensor, an induced field beyond
-// 20% of the Earth's field, or an eddy time constant beyond 20 ms would be
-// a platform no compensation could fix. Aux terms: their contribution
+// 20% of the Earth's field, or an eddy coefficient beyond 5 ms (50 nT of
+// eddy field for a direction-cosine rate of 0.2/s in a 50,000 nT field,
+// ten times the largest eddy fields of survey aircraft) would be a
+// platform no compensation could fix. Aux terms: their contribution
 // beyond 20,000 nT.
 constexpr double kMaxPermanentNT = 20000.0;
 constexpr double kMaxInduced = 0.2;
-constexpr double kMaxEddyS = 0.02;
+constexpr double kMaxEddyS = 0.005;
 // A term whose standard error exceeds this fraction of its plausible range
-// is not determined by the flight.
-constexpr double kUndeterminedFraction = 0.1;
+// (200 nT, 0.002, 50 us) is not determined by the flight.
+constexpr double kUndeterminedFraction = 0.01;
 
 // Tuning constants for 95% efficiency under Gaussian noise (common
 // practice: Huber 1981; Holland & Welsch 1977) and the MAD-to-sigma factor
@@ -126,15 +131,34 @@ Eigen::VectorXd AtFitRows(const Work& w, const std::vector<double>& full) {
 
 // Adds the gauge constraints as weighted pseudo-observations to a
 // compressed system (recompressing the (p + c) x p stack).
-CompressedSystem Augment(const CompressedSystem& s, const Work& w) {
-  if (w.constraints.empty()) return s;
+// Gauge constraints still needed: one whose terms include a held one is
+// already fixed by the hold.
+std::vector<std::vector<double>> ActiveConstraints(const Work& w,
+                                                  const std::vector<bool>& held) {
+  std::vector<std::vector<double>> active;
+  for (const auto& g : w.constraints) {
+    bool touches_held = false;
+    for (std::size_t j = 0; j < g.size(); ++j) {
+      touches_held = touches_held || (g[j] != 0.0 && held[j]);
+    }
+    if (!touches_held) active.push_back(g);
+  }
+  return active;
+}
+
+CompressedSystem Augment(const CompressedSystem& s, const Work& w,
+                         const std::vector<bool>& held) {
+  const std::vector<std::vector<double>> constraints = ActiveConstraints(w, held);
+  if (constraints.empty()) return s;
   const long p = s.r.cols();
-  const long c = static_cast<long>(w.constraints.size());
+  const long c = static_cast<long>(constraints.size());
   Eigen::MatrixXd stack = Eigen::MatrixXd::Zero(p + c, p);
   stack.topRows(p) = s.r;
   const double weight = kConstraintWeight * std::sqrt(static_cast<double>(s.rows));
   for (long i = 0; i < c; ++i) {
-    for (long j = 0; j < p; ++j) stack(p + i, j) = weight * w.constraints[i][j];
+    for (long j = 0; j < p; ++j) {
+      stack(p + i, j) = weight * constraints[static_cast<std::size_t>(i)][static_cast<std::size_t>(j)];
+    }
   }
   Eigen::VectorXd rhs = Eigen::VectorXd::Zero(p + c);
   rhs.head(p) = s.z;
@@ -192,7 +216,10 @@ Solution SolveWith(const Work& w, const CompressedSystem& augmented,
   LeastSquaresOptions options;
   options.prior_weights.assign(w.p, std::sqrt(n * lambda));
   for (std::size_t j = 0; j < w.p; ++j) {
-    if (held[j]) options.prior_weights[j] = kHoldWeight * std::sqrt(n);
+    if (held[j]) {
+      options.prior_weights[j] = 0.0;
+      options.fixed.push_back(static_cast<int>(j));
+    }
   }
   options.compute_covariance = covariance;
   const LeastSquaresSummary ls = SolveLeastSquares(augmented, options);
@@ -390,19 +417,28 @@ LagResult EstimateLag(const Work& w, const std::vector<double>& band_full,
                            x.data(), &lag);
   const double n = static_cast<double>(rows.rows.size());
   {
-    const long c = static_cast<long>(w.constraints.size());
+    const std::vector<std::vector<double>> constraints = ActiveConstraints(w, held);
+    const long c = static_cast<long>(constraints.size());
     Eigen::MatrixXd g = Eigen::MatrixXd::Zero(p + c, p);
     for (long j = 0; j < p; ++j) {
-      g(j, j) = held[static_cast<std::size_t>(j)] ? kHoldWeight * std::sqrt(n)
-                                                  : std::sqrt(n * lambda);
+      g(j, j) = held[static_cast<std::size_t>(j)] ? 0.0 : std::sqrt(n * lambda);
     }
     for (long i = 0; i < c; ++i) {
       for (long j = 0; j < p; ++j) {
         g(p + i, j) = kConstraintWeight * std::sqrt(n) *
-                      w.constraints[static_cast<std::size_t>(i)][static_cast<std::size_t>(j)];
+                      constraints[static_cast<std::size_t>(i)][static_cast<std::size_t>(j)];
       }
     }
     problem.AddResidualBlock(new PriorCost(std::move(g)), nullptr, x.data());
+  }
+  {
+    std::vector<int> fixed;
+    for (long j = 0; j < p; ++j) {
+      if (held[static_cast<std::size_t>(j)]) fixed.push_back(static_cast<int>(j));
+    }
+    if (!fixed.empty()) {
+      problem.SetManifold(x.data(), new ceres::SubsetManifold(static_cast<int>(p), fixed));
+    }
   }
   problem.SetParameterLowerBound(&lag, 0, -max_lag_samples - 1);
   problem.SetParameterUpperBound(&lag, 0, max_lag_samples + 1);
@@ -447,21 +483,30 @@ LagResult EstimateLag(const Work& w, const std::vector<double>& band_full,
 
 // ----- robust loss --------------------------------------------------------
 
-// Running median of x over an odd window within each run (runs shorter
-// than the window use their own median).
-std::vector<double> RunningMedian(const Work& w, const std::vector<double>& x,
-                                  std::size_t window) {
+// Residual of each sample against the median of its neighbours within
+// +-half samples (the sample itself excluded) in its run. A spike keeps its
+// full height; white noise of sigma comes out with about 1.2 sigma (sqrt(3/2)
+// for half = 1..2 on smooth data); a smooth signal cancels to its
+// curvature. Unlike the residual from a running median that includes the
+// sample, it does not vanish on monotonic stretches.
+std::vector<double> NeighbourMedianResidual(const Work& w,
+                                            const std::vector<double>& x,
+                                            std::size_t half) {
   std::vector<double> out(w.n, kNaN);
   std::vector<double> buffer;
-  const std::size_t half = window / 2;
   for (const Run& run : w.runs) {
     for (std::size_t i = run.begin; i < run.end; ++i) {
       const std::size_t b = i >= run.begin + half ? i - half : run.begin;
       const std::size_t e = std::min(run.end, i + half + 1);
-      buffer.assign(x.begin() + static_cast<long>(b), x.begin() + static_cast<long>(e));
-      const std::size_t m = buffer.size() / 2;
-      std::nth_element(buffer.begin(), buffer.begin() + static_cast<long>(m), buffer.end());
-      out[i] = buffer[m];
+      buffer.clear();
+      for (std::size_t q = b; q < e; ++q) {
+        if (q != i) buffer.push_back(x[q]);
+      }
+      if (buffer.empty()) {
+        out[i] = 0.0;
+        continue;
+      }
+      out[i] = x[i] - Median(buffer);
     }
   }
   return out;
@@ -876,7 +921,9 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   }
   // Gauge of the 18-term set: sum c_i^2 = 1 and sum c_i c'_i = 0 leave the
   // trace of the induced and eddy matrices undetermined (the first would
-  // only rescale the total field itself), so it is fixed at zero.
+  // only rescale the total field itself), so it is fixed at zero, unless
+  // the shape analysis already holds one of its terms (sum c_i^2 = 1 is
+  // exact, so ind_zz is held and the induced part equals the default set).
   if (options.terms.full) {
     for (const char* group : {"ind_", "eddy_"}) {
       std::vector<double> g(w.p, 0.0);
@@ -901,59 +948,95 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
     w.bound[j] = PlausibleBound(result.term_names[j], w, aux_rms, j, aux_first);
   }
 
-  std::vector<bool> held = w.unexcited;
-  std::vector<std::string> notes(w.p);
-  for (std::size_t j = 0; j < w.p; ++j) {
-    if (held[j]) notes[j] = "no variation in the band (not excited)";
-  }
-
-  const CompressedDesign design(w.a);
-  std::vector<double> field_aligned = w.field;
-  std::vector<double> band_full = BandPassRuns(w, field_aligned);
-  Eigen::VectorXd y = AtFitRows(w, band_full);
-
-  // Condition number of the equilibrated matrix over its excited columns.
+  // Term shapes: columns without the Bt factor (induced c_i c_j, eddy
+  // c_i c'_j; permanent and aux are their own shapes), de-meaned and scaled
+  // to unit RMS over (at most 100,000 of) the fitted rows. A near-null
+  // combination was not excited independently (e.g. level driving:
+  // c_x^2 + c_y^2 = 1 - c_z^2 constant, c_z' = 0).
+  Eigen::MatrixXd shapes;
   {
-    const CompressedSystem s = Augment(design.Compress(y), w);
-    const SvdAnalysis svd = AnalyseSystem(SubSystem(s, FreeColumns(held)));
-    result.condition_number = svd.condition_number;
+    const std::size_t stride = std::max<std::size_t>(1, (n_fit + 99999) / 100000);
+    const long m = static_cast<long>((n_fit + stride - 1) / stride);
+    shapes.resize(m, static_cast<long>(w.p));
+    for (long r = 0; r < m; ++r) {
+      const std::size_t i = w.fit_rows[static_cast<std::size_t>(r) * stride];
+      for (std::size_t j = 0; j < w.p; ++j) {
+        const std::string& name = result.term_names[j];
+        const bool scaled = name.rfind("ind_", 0) == 0 || name.rfind("eddy_", 0) == 0;
+        double v = w.tm.values[i * w.p + j];
+        if (scaled) v /= w.tm.bt[i];
+        shapes(r, static_cast<long>(j)) = v;
+      }
+    }
+    for (long j = 0; j < shapes.cols(); ++j) {
+      shapes.col(j).array() -= shapes.col(j).mean();
+      const double rms = shapes.col(j).norm() / std::sqrt(static_cast<double>(m));
+      if (rms > 0 && std::isfinite(rms)) {
+        shapes.col(j) /= rms;
+      } else {
+        shapes.col(j).setZero();
+      }
+    }
   }
+  const CompressedSystem shape_system =
+      Compress(shapes, Eigen::VectorXd::Zero(shapes.rows()));
 
+  std::vector<bool> held;
+  std::vector<std::string> notes(w.p);
+  const CompressedDesign design(w.a);
   const double fixed_lambda = options.ridge_auto ? -1.0 : options.ridge;
   result.ridge_method = options.ridge_auto ? "gcv" : "fixed";
 
-  // Determination: hold null directions, undetermined or implausible terms
-  // one at a time (the worst first) until every free term is determined.
-  auto determine = [&](const CompressedSystem& augmented, Solution* final_solution) {
+  // Determination: hold null or unexcited directions, undetermined or
+  // implausible terms one at a time (the worst first) until every free term
+  // is determined; then solve.
+  auto hold_null_direction = [&](const CompressedSystem& system,
+                                 double threshold, const char* what) {
+    const std::vector<int> free = FreeColumns(held);
+    if (free.empty()) return false;
+    const SvdAnalysis svd = AnalyseSystem(SubSystem(system, free));
+    const long q = svd.singular_values.size();
+    const double s0 = svd.singular_values(0);
+    if (q == 0 || svd.singular_values(q - 1) > threshold * s0) return false;
+    // Hold the term loading most on the null direction (ties: the later
+    // term, so that `full` gives up ind_zz / eddy_zz first).
+    const Eigen::VectorXd v = svd.v.col(q - 1).cwiseAbs();
+    const double vmax = v.maxCoeff();
+    long pick = 0;
+    for (long i = 0; i < q; ++i) {
+      if (v(i) >= 0.5 * vmax) pick = i;
+    }
+    const std::size_t j = static_cast<std::size_t>(free[static_cast<std::size_t>(pick)]);
+    held[j] = true;
+    notes[j] = std::string(what) + " (relative singular value " +
+               Sci(svd.singular_values(q - 1) / s0) + ")";
+    return true;
+  };
+  auto determine = [&](const CompressedSystem& base) {
+    held = w.unexcited;
+    for (std::size_t j = 0; j < w.p; ++j) {
+      notes[j] = held[j] ? "no variation in the band (not excited)" : "";
+    }
     for (std::size_t round = 0; round <= w.p; ++round) {
-      const std::vector<int> free = FreeColumns(held);
-      if (free.empty()) break;
-      const CompressedSystem sub = SubSystem(augmented, free);
-      const SvdAnalysis svd = AnalyseSystem(sub);
-      const long q = svd.singular_values.size();
-      const double s0 = svd.singular_values(0);
-      if (q > 0 && !(svd.singular_values(q - 1) > kNullSingularValue * s0)) {
-        // Hold the term loading most on the null direction (ties: the later
-        // term, so that `full` gives up ind_zz / eddy_zz first).
-        const Eigen::VectorXd v = svd.v.col(q - 1).cwiseAbs();
-        const double vmax = v.maxCoeff();
-        long pick = 0;
-        for (long i = 0; i < q; ++i) {
-          if (v(i) >= 0.5 * vmax) pick = i;
-        }
-        const std::size_t j = static_cast<std::size_t>(free[static_cast<std::size_t>(pick)]);
-        held[j] = true;
-        notes[j] = "no independent excitation (relative singular value " +
-                   Sci(svd.singular_values(q - 1) / s0) + ")";
+      if (FreeColumns(held).empty()) break;
+      if (hold_null_direction(shape_system, kShapeNullSingularValue,
+                              "not excited independently of the other terms")) {
+        continue;
+      }
+      const CompressedSystem augmented = Augment(base, w, held);
+      if (hold_null_direction(augmented, kNullSingularValue,
+                              "no independent excitation")) {
         continue;
       }
       Solution s = SolveWith(w, augmented, held, fixed_lambda, true);
-      if (!s.ok) {
-        *final_solution = s;
-        return;
-      }
+      if (!s.ok) return s;
+      const std::vector<int> free = FreeColumns(held);
+      const CompressedSystem sub = SubSystem(augmented, free);
+      const long q = sub.r.cols();
       // Standard errors from the data alone (no ridge), physical units.
       const double sigma2 = WhiteVariance(w, s);
+      const double band_sigma =
+          std::sqrt(s.rss / std::max(1.0, static_cast<double>(n_fit) - s.dof));
       Eigen::MatrixXd rinv = Eigen::MatrixXd::Identity(q, q);
       sub.r.triangularView<Eigen::Upper>().solveInPlace(rinv);
       double worst = 1.0;
@@ -965,64 +1048,48 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
         const double se = std::sqrt(sigma2 * rinv.row(i).squaredNorm()) / sc;
         const double value = s.x(static_cast<long>(j)) / sc;
         const double bound = w.bound[j];
+        const std::string unit = TermUnit(result.term_names[j]);
+        // Excitation: a coefficient at the plausible limit would change the
+        // band-passed field by bound * sc (RMS); below the residual noise
+        // the flight cannot see the term at all.
+        const double r_excite = band_sigma / (bound * sc);
         const double r_value = std::fabs(value) / bound;
         const double r_se = se / (kUndeterminedFraction * bound);
+        if (std::isfinite(r_excite) && r_excite > worst) {
+          worst = r_excite;
+          worst_j = static_cast<long>(j);
+          worst_note = "not excited: even +-" + Sci(bound) + " " + unit +
+                       " would change the band-passed field by only " +
+                       Sci(bound * sc) + " nT RMS, below the residual " +
+                       Sci(band_sigma) + " nT";
+        }
         if (std::isfinite(r_value) && r_value > worst) {
           worst = r_value;
           worst_j = static_cast<long>(j);
-          worst_note = "implausible value " + Sci(value) + " " +
-                       TermUnit(result.term_names[j]) + " (plausible within +-" +
-                       Sci(bound) + ")";
+          worst_note = "implausible value " + Sci(value) + " " + unit +
+                       " (plausible within +-" + Sci(bound) + ")";
         }
         if (std::isfinite(r_se) && r_se > worst) {
           worst = r_se;
           worst_j = static_cast<long>(j);
-          worst_note = "standard error " + Sci(se) + " " +
-                       TermUnit(result.term_names[j]) + " exceeds " +
+          worst_note = "standard error " + Sci(se) + " " + unit + " exceeds " +
                        Sci(kUndeterminedFraction * bound);
         }
       }
-      if (worst_j < 0) {
-        *final_solution = s;
-        return;
-      }
+      if (worst_j < 0) return s;
       held[static_cast<std::size_t>(worst_j)] = true;
       notes[static_cast<std::size_t>(worst_j)] = worst_note;
     }
-    *final_solution = SolveWith(w, augmented, held, fixed_lambda, true);
+    return SolveWith(w, Augment(base, w, held), held, fixed_lambda, true);
   };
 
-  Solution solution;
-  determine(Augment(design.Compress(y), w), &solution);
-  if (!solution.ok) {
-    result.message = "the least-squares solve failed: " + solution.message;
-    return result;
-  }
-
-  // ---- lag -----------------------------------------------------------------
-  if (w.scalar && options.estimate_lag && options.max_lag_s > 0) {
-    const LagResult lag = EstimateLag(w, band_full, held, solution.lambda,
-                                      options.max_lag_s * w.rate);
-    if (lag.ok) {
-      result.lag_estimated = true;
-      result.lag_s = lag.lag_samples / w.rate;
-      result.lag_std_error_s = lag.std_error_samples / w.rate;
-      if (lag.at_limit) {
-        result.warnings.push_back(
-            "the lag estimate " + Fixed(result.lag_s, 3) +
-            " s lies at the search limit: check the time stamps of the "
-            "scalar sensor or raise --max-lag");
-      }
-      field_aligned = ShiftByLag(w.time, w.field, result.lag_s, w.rate,
-                                 options.gap_factor);
-      band_full = BandPassRuns(w, field_aligned);
-      y = AtFitRows(w, band_full);
-      determine(Augment(design.Compress(y), w), &solution);
-      if (!solution.ok) {
-        result.message = "the least-squares solve failed: " + solution.message;
-        return result;
-      }
-    }
+  // Condition number of the equilibrated matrix over its excited columns.
+  std::vector<double> band_full = BandPassRuns(w, w.field);
+  Eigen::VectorXd y = AtFitRows(w, band_full);
+  {
+    const CompressedSystem s = Augment(design.Compress(y), w, w.unexcited);
+    const SvdAnalysis svd = AnalyseSystem(SubSystem(s, FreeColumns(w.unexcited)));
+    result.condition_number = svd.condition_number;
   }
 
   auto physical = [&](const Eigen::VectorXd& x_e) {
@@ -1033,27 +1100,40 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
     return v;
   };
 
-  // ---- robust loss -----------------------------------------------------
-  if (options.loss != RobustLoss::kNone) {
-    std::vector<double> values = physical(solution.x);
-    auto raw_residual_hp = [&](const std::vector<double>& v) {
-      std::vector<double> r(w.n, 0.0);
-      for (const Run& run : w.runs) {
-        for (std::size_t i = run.begin; i < run.end; ++i) {
-          double h = 0;
-          for (std::size_t j = 0; j < w.p; ++j) h += w.tm.values[i * w.p + j] * v[j];
-          r[i] = field_aligned[i] - h;
-        }
+  // The measured field aligned by the current lag, and the same with the
+  // outliers' excess removed (robust loss; otherwise identical).
+  std::vector<double> aligned = w.field;
+  std::vector<double> cleaned = w.field;
+  Solution solution = determine(design.Compress(y));
+  if (!solution.ok) {
+    result.message = "the least-squares solve failed: " + solution.message;
+    return result;
+  }
+
+  // ---- robust loss (pseudo-observations, see fit.h step 7) -----------------
+  std::size_t downweighted = 0;
+  // High-frequency part of the raw residual: residual minus the median of
+  // its neighbours within ~0.3 s, at least 3 on each side (keeps a spike,
+  // even two in a window; drops geology, diurnal and the slow part of any
+  // misfit).
+  auto raw_residual_hp = [&](const std::vector<double>& field,
+                             const std::vector<double>& v) {
+    std::vector<double> r(w.n, 0.0);
+    for (const Run& run : w.runs) {
+      for (std::size_t i = run.begin; i < run.end; ++i) {
+        double h = 0;
+        for (std::size_t j = 0; j < w.p; ++j) h += w.tm.values[i * w.p + j] * v[j];
+        r[i] = field[i] - h;
       }
-      const std::size_t window =
-          std::max<std::size_t>(5, 2 * static_cast<std::size_t>(0.25 * w.rate) + 1);
-      const std::vector<double> med = RunningMedian(w, r, window);
-      for (const Run& run : w.runs) {
-        for (std::size_t i = run.begin; i < run.end; ++i) r[i] -= med[i];
-      }
-      return r;
-    };
-    std::vector<double> hp = raw_residual_hp(values);
+    }
+    const std::size_t half =
+        std::max<std::size_t>(3, static_cast<std::size_t>(std::lround(0.3 * w.rate)));
+    return NeighbourMedianResidual(w, r, half);
+  };
+  // Robust scale: 1.4826 x the median absolute deviation of the residuals
+  // (re-estimated at every iteration from the current, un-weighted
+  // residuals), times the loss's tuning constant.
+  auto robust_scale = [&](const std::vector<double>& hp) {
     std::vector<double> in_runs;
     for (const Run& run : w.runs) {
       in_runs.insert(in_runs.end(), hp.begin() + static_cast<long>(run.begin),
@@ -1062,53 +1142,99 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
     const double med = Median(in_runs);
     for (double& v : in_runs) v = std::fabs(v - med);
     const double sigma = kMadToSigma * Median(in_runs);
-    const double c = (options.loss == RobustLoss::kHuber ? kHuberTuning
-                                                         : kCauchyTuning) *
-                     sigma;
-    result.loss_scale_nT = c;
-    if (c > 0 && std::isfinite(c)) {
+    return (options.loss == RobustLoss::kHuber ? kHuberTuning : kCauchyTuning) *
+           sigma;
+  };
+  // Pseudo-observations (Huber 1981, sec. 7.8): field* = field - (r - psi(r))
+  // for the high-frequency residual r, iterated on field* so that a cluster
+  // of spikes is taken apart over successive passes.
+  auto robust_iterations = [&]() {
+    if (options.loss == RobustLoss::kNone) return;
+    cleaned = aligned;
+    for (int iteration = 0; iteration < 30; ++iteration) {
+      const std::vector<double> hp = raw_residual_hp(cleaned, physical(solution.x));
+      const double c = robust_scale(hp);
+      if (!(c > 0) || !std::isfinite(c)) {
+        result.warnings.push_back(
+            "the robust loss was not applied: the residuals' median absolute "
+            "deviation is zero");
+        return;
+      }
+      result.loss_scale_nT = c;
       std::unique_ptr<ceres::LossFunction> loss;
       if (options.loss == RobustLoss::kHuber) {
         loss = std::make_unique<ceres::HuberLoss>(c);
       } else {
         loss = std::make_unique<ceres::CauchyLoss>(c);
       }
-      std::size_t downweighted = 0;
-      const double lambda = solution.lambda;
-      for (int iteration = 0; iteration < 20; ++iteration) {
-        std::vector<double> cleaned = field_aligned;
-        downweighted = 0;
-        for (const Run& run : w.runs) {
-          for (std::size_t i = run.begin; i < run.end; ++i) {
-            // Weight rho'(r^2) of the Ceres loss; psi(r) = rho' r.
-            double rho[3];
-            loss->Evaluate(hp[i] * hp[i], rho);
-            if (rho[1] < 0.5) ++downweighted;
-            cleaned[i] -= (1.0 - rho[1]) * hp[i];
-          }
+      downweighted = 0;
+      for (const Run& run : w.runs) {
+        for (std::size_t i = run.begin; i < run.end; ++i) {
+          // Weight rho'(r^2) of the Ceres loss; psi(r) = rho' r.
+          double rho[3];
+          loss->Evaluate(hp[i] * hp[i], rho);
+          if (rho[1] < 0.5) ++downweighted;
+          cleaned[i] -= (1.0 - rho[1]) * hp[i];
         }
-        band_full = BandPassRuns(w, cleaned);
-        y = AtFitRows(w, band_full);
-        Solution next = SolveWith(w, Augment(design.Compress(y), w), held,
-                                  lambda, true);
-        if (!next.ok) break;
-        const double change = (next.x - solution.x).cwiseAbs().maxCoeff();
-        const double size = 1.0 + solution.x.cwiseAbs().maxCoeff();
-        solution = next;
-        values = physical(solution.x);
-        hp = raw_residual_hp(values);
-        if (change < 1e-7 * size) break;
       }
-      result.warnings.push_back(
-          std::to_string(downweighted) + " sample(s) (" +
-          Fixed(100.0 * static_cast<double>(downweighted) /
-                    static_cast<double>(std::max<std::size_t>(1, n_fit)), 2) +
-          "%) weighted below one half by the " + result.loss + " loss");
-      // Metrics below use the measured (not cleaned) field.
-      band_full = BandPassRuns(w, field_aligned);
+      band_full = BandPassRuns(w, cleaned);
       y = AtFitRows(w, band_full);
+      Solution next = determine(design.Compress(y));
+      if (!next.ok) break;
+      const double change = (next.x - solution.x).cwiseAbs().maxCoeff();
+      const double size = 1.0 + solution.x.cwiseAbs().maxCoeff();
+      solution = next;
+      if (change < 1e-7 * size) break;
+    }
+  };
+  robust_iterations();
+
+  // ---- lag -----------------------------------------------------------------
+  if (w.scalar && options.estimate_lag && options.max_lag_s > 0) {
+    // Searched on the (cleaned) field at lag 0.
+    const LagResult lag = EstimateLag(w, BandPassRuns(w, cleaned), held,
+                                      solution.lambda, options.max_lag_s * w.rate);
+    if (lag.ok) {
+      result.lag_estimated = true;
+      result.lag_s = lag.lag_samples / w.rate;
+      result.lag_std_error_s = lag.std_error_samples / w.rate;
+      if (lag.at_limit) {
+        result.warnings.push_back(
+            "the lag estimate " + Fixed(result.lag_s, 3) +
+            " s lies at the search limit: check the time stamps of the "
+            "scalar sensor or raise --max-lag");
+      }
+      aligned = ShiftByLag(w.time, w.field, result.lag_s, w.rate,
+                           options.gap_factor);
+      cleaned = aligned;
+      band_full = BandPassRuns(w, aligned);
+      y = AtFitRows(w, band_full);
+      solution = determine(design.Compress(y));
+      if (!solution.ok) {
+        result.message = "the least-squares solve failed: " + solution.message;
+        return result;
+      }
+      robust_iterations();
     }
   }
+  if (options.loss != RobustLoss::kNone) {
+    // Samples whose reading the loss moved by more than its scale.
+    downweighted = 0;
+    for (const Run& run : w.runs) {
+      for (std::size_t i = run.begin; i < run.end; ++i) {
+        if (std::fabs(aligned[i] - cleaned[i]) > result.loss_scale_nT) ++downweighted;
+      }
+    }
+    result.warnings.push_back(
+        std::to_string(downweighted) + " sample(s) (" +
+        Fixed(100.0 * static_cast<double>(downweighted) /
+                  static_cast<double>(std::max<std::size_t>(1, n_fit)), 2) +
+        "%) treated as outliers by the " + result.loss +
+        " loss (reading moved by more than " + Sci(result.loss_scale_nT) + " nT)");
+  }
+  // Metrics below use the measured (aligned, not cleaned) field.
+  band_full = BandPassRuns(w, aligned);
+  y = AtFitRows(w, band_full);
 
   // ---- coefficients --------------------------------------------------------
   result.ridge_lambda = solution.lambda;
@@ -1125,7 +1251,11 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
         solution.covariance_ok
             ? solution.covariance(static_cast<long>(j), static_cast<long>(j)) * sigma2
             : kNaN;
-    c.std_error = std::sqrt(std::max(0.0, var)) / w.scale(static_cast<long>(j));
+    // NaN stays NaN (reported with a warning below); a held term is fixed,
+    // so its covariance entry is exactly 0.
+    c.std_error = std::isnan(var) ? kNaN
+                                  : std::sqrt(std::max(0.0, var)) /
+                                        w.scale(static_cast<long>(j));
     c.held = held[j];
     c.note = notes[j];
     result.coefficients.push_back(c);
@@ -1221,7 +1351,7 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
             at.row(static_cast<long>(r)) = w.a.row(train[r]);
             yt(static_cast<long>(r)) = y(train[r]);
           }
-          const Solution s = SolveWith(w, Augment(Compress(at, yt), w), held,
+          const Solution s = SolveWith(w, Augment(Compress(at, yt), w, held), held,
                                        solution.lambda, false);
           if (s.ok) {
             const Eigen::VectorXd fit_cv = w.a * s.x;

@@ -73,6 +73,12 @@ bool LeastSquaresOptions::IsValid(std::string* error) const {
     if (error) *error = "constraint weight must be finite and > 0";
     return false;
   }
+  for (int j : fixed) {
+    if (j < 0) {
+      if (error) *error = "fixed term indices must be >= 0";
+      return false;
+    }
+  }
   if (max_iterations < 1) {
     if (error) *error = "max_iterations must be >= 1";
     return false;
@@ -165,6 +171,26 @@ LeastSquaresSummary SolveLeastSquares(const CompressedSystem& system,
                              summary.x.data());
   }
 
+  if (!options.fixed.empty()) {
+    for (int j : options.fixed) {
+      if (j >= p) {
+        summary.message = "fixed term index out of range";
+        return summary;
+      }
+    }
+    if (static_cast<long>(options.fixed.size()) >= p) {
+      summary.usable = true;  // every term held at 0
+      summary.data_sum_squares = system.z.squaredNorm() + system.outside_sum_squares;
+      if (options.compute_covariance) {
+        summary.covariance = Eigen::MatrixXd::Zero(p, p);
+        summary.covariance_ok = true;
+      }
+      summary.message = "every term held at 0";
+      return summary;
+    }
+    problem.SetManifold(summary.x.data(),
+                        new ceres::SubsetManifold(static_cast<int>(p), options.fixed));
+  }
   ceres::Solver::Options solver_options;
   solver_options.linear_solver_type = ceres::DENSE_QR;
   solver_options.minimizer_type = ceres::TRUST_REGION;

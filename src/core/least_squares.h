@@ -5,6 +5,7 @@
 // columns, see fit.h):
 //
 //   minimise  ||A x - y||^2 + sum_j w_j^2 x_j^2 + sum_c (g_c . x)^2
+//   subject to x_j = 0 for the fixed terms
 //
 // where A is n x p (row-major or column-major Eigen matrix, n >= p), y has n
 // values, w_j are per-term prior weights (the ridge sqrt(n lambda) for every
@@ -58,6 +59,9 @@ class CompressedDesign {
 struct LeastSquaresOptions {
   // Per-term prior weights w_j (residual w_j x_j); empty means no prior.
   std::vector<double> prior_weights;
+  // Terms held constant at 0 (ceres::SubsetManifold): an infinitely strong
+  // prior. Their rows and columns of the covariance are 0.
+  std::vector<int> fixed;
   // Soft linear constraints g . x = 0, one row of p values each, applied
   // with weight constraint_weight.
   std::vector<std::vector<double>> constraints;
