@@ -80,61 +80,50 @@ std::string DesignSpecFor(const Case& c) {
   return DesignSpec(c.order, filter.low_hz(), filter.high_hz(), c.rate_hz);
 }
 
-// Every SciPy value the suite needs, from one run of the reference script
+// SciPy values by spec, filled by Fetch. ctest runs every test in its own
+// process, so each test fetches what it needs in one run of the script
 // (starting Python and importing SciPy is the slow part).
-const std::map<std::string, Arrays>& Reference() {
-  static const std::map<std::string, Arrays> reference = [] {
-    std::vector<std::string> specs;
-    for (const Case& c : kTransferCases) specs.push_back(DesignSpecFor(c));
-    for (const Case& c : kSectionCases) specs.push_back(DesignSpecFor(c));
-    {
-      BandPassOptions options;
-      options.high_hz = kClipHighHz;
-      const BandPass clipped(options, kClipRateHz);
-      specs.push_back(DesignSpec(4, 0.1, clipped.high_hz(), kClipRateHz));
-    }
-    for (double rate : {10.0, 100.0}) {
-      for (int order = 2; order <= 6; ++order) {
-        specs.push_back(FilterSpec(order, rate, FilterLength(rate), order));
-      }
-    }
-    for (int order : {1, 2}) specs.push_back(FilterSpec(order, 10, 3000, 7));
-    specs.push_back(FilterSpec(4, 10, 28, 3));
+std::map<std::string, Arrays>& Cache() {
+  static std::map<std::string, Arrays> cache;
+  return cache;
+}
 
-    std::string cmd = std::string(FLUXTRIM_PYTHON) + " " +
-                      FLUXTRIM_SOURCE_DIR +
-                      "/tests/reference/scipy_butterworth.py";
-    std::sort(specs.begin(), specs.end());
-    specs.erase(std::unique(specs.begin(), specs.end()), specs.end());
-    for (const std::string& spec : specs) cmd += " " + spec;
-    std::unique_ptr<FILE, int (*)(FILE*)> pipe(popen(cmd.c_str(), "r"),
-                                               pclose);
-    if (!pipe) throw std::runtime_error("cannot run " + cmd);
-    std::string text;
-    char buffer[1 << 16];
-    std::size_t got;
-    while ((got = fread(buffer, 1, sizeof buffer, pipe.get())) > 0) {
-      text.append(buffer, got);
-    }
-    std::map<std::string, Arrays> out;
-    std::istringstream lines(text);
-    std::string line;
-    while (std::getline(lines, line)) {
-      std::istringstream fields(line);
-      std::string spec, name, token;
-      fields >> spec >> name;
-      std::vector<double> values;
-      while (fields >> token) values.push_back(std::stod(token));
-      out[spec][name] = values;
-    }
-    return out;
-  }();
-  return reference;
+void Fetch(std::vector<std::string> specs) {
+  std::sort(specs.begin(), specs.end());
+  specs.erase(std::unique(specs.begin(), specs.end()), specs.end());
+  std::string cmd = std::string(FLUXTRIM_PYTHON) + " " + FLUXTRIM_SOURCE_DIR +
+                    "/tests/reference/scipy_butterworth.py";
+  bool any = false;
+  for (const std::string& spec : specs) {
+    if (Cache().count(spec)) continue;
+    cmd += " " + spec;
+    any = true;
+  }
+  if (!any) return;
+  std::unique_ptr<FILE, int (*)(FILE*)> pipe(popen(cmd.c_str(), "r"), pclose);
+  if (!pipe) throw std::runtime_error("cannot run " + cmd);
+  std::string text;
+  char buffer[1 << 16];
+  std::size_t got;
+  while ((got = fread(buffer, 1, sizeof buffer, pipe.get())) > 0) {
+    text.append(buffer, got);
+  }
+  std::istringstream lines(text);
+  std::string line;
+  while (std::getline(lines, line)) {
+    std::istringstream fields(line);
+    std::string spec, name, token;
+    fields >> spec >> name;
+    std::vector<double> values;
+    while (fields >> token) values.push_back(std::stod(token));
+    Cache()[spec][name] = values;
+  }
 }
 
 const Arrays& Ref(const std::string& spec) {
-  const auto it = Reference().find(spec);
-  if (it == Reference().end()) {
+  Fetch({spec});
+  const auto it = Cache().find(spec);
+  if (it == Cache().end()) {
     throw std::runtime_error("scipy_butterworth.py gave nothing for " + spec);
   }
   return it->second;
@@ -157,6 +146,9 @@ void ExpectCoefficientsNear(const std::vector<double>& mine,
 
 TEST(BandPass, TransferFunctionMatchesScipyButterBa) {
   if (!HaveScipy()) GTEST_SKIP() << FLUXTRIM_PYTHON << " has no scipy";
+  std::vector<std::string> specs;
+  for (const Case& c : kTransferCases) specs.push_back(DesignSpecFor(c));
+  Fetch(specs);
   for (const Case& c : kTransferCases) {
     BandPassOptions options;
     options.order = c.order;
@@ -173,6 +165,9 @@ TEST(BandPass, TransferFunctionMatchesScipyButterBa) {
 
 TEST(BandPass, SectionsMatchScipyButterSosIncludingPairingAndOrder) {
   if (!HaveScipy()) GTEST_SKIP() << FLUXTRIM_PYTHON << " has no scipy";
+  std::vector<std::string> specs;
+  for (const Case& c : kSectionCases) specs.push_back(DesignSpecFor(c));
+  Fetch(specs);
   for (const Case& c : kSectionCases) {
     BandPassOptions options;
     options.order = c.order;
@@ -209,6 +204,13 @@ TEST(BandPass, FilterMatchesScipySosfiltfiltOnRealisticField) {
   // measured at up to 1.8e-8 nT at 100 Hz against a long-double
   // sosfiltfilt (see scipy_butterworth.py); 5e-8 bounds it with margin.
   constexpr double kRawTolNt = 5e-8;
+  std::vector<std::string> specs;
+  for (double rate : {10.0, 100.0}) {
+    for (int order = 2; order <= 6; ++order) {
+      specs.push_back(FilterSpec(order, rate, FilterLength(rate), order));
+    }
+  }
+  Fetch(specs);
   for (double rate : {10.0, 100.0}) {
     for (int order = 2; order <= 6; ++order) {
       BandPassOptions options;
