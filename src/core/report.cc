@@ -18,30 +18,28 @@ namespace {
 
 constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
 
-// Palette (our own): warm terracotta for "before", deep blue for "after",
-// pale tints for maneuver kinds, distinct hues per term group.
-constexpr const char* kBefore = "#c8553d";
-constexpr const char* kAfter = "#1b4965";
-constexpr const char* kInk = "#1f2933";
-constexpr const char* kMuted = "#52606d";
+// Palette (our own, report.h): warm terracotta for "before", deep blue for
+// "after", pale tints for maneuver kinds, distinct hues per term group.
+constexpr const char* kBefore = kReportColourBefore;
+constexpr const char* kAfter = kReportColourAfter;
 constexpr const char* kPitchTint = "#f6e7c8";
 constexpr const char* kRollTint = "#d8ecdc";
 constexpr const char* kYawTint = "#e4ddf1";
 constexpr const char* kOtherTint = "#e9edf1";
-constexpr const char* kRoll = "#3d7ea6";
-constexpr const char* kPitch = "#d8903a";
-constexpr const char* kHeading = "#4f5d75";
-constexpr const char* kTrack = "#4f5d75";
+constexpr const char* kRoll = kReportColourRoll;
+constexpr const char* kPitch = kReportColourPitch;
+constexpr const char* kHeading = kReportColourHeading;
+constexpr const char* kTrack = kReportColourTrack;
 
 // Plot sizes (px) for a 1000 px content column: two columns of 492.
 constexpr double kHalfWidth = 492.0;
 constexpr double kFullWidth = 1000.0;
 
 const char* GroupColour(const std::string& group) {
-  if (group == "permanent") return "#1b4965";
-  if (group == "induced") return "#5a8f29";
-  if (group == "eddy") return "#8e4585";
-  if (group == "aux") return "#b0703c";
+  if (group == "permanent") return kReportColourPermanent;
+  if (group == "induced") return kReportColourInduced;
+  if (group == "eddy") return kReportColourEddy;
+  if (group == "aux") return kReportColourAux;
   return "#4f5d75";
 }
 
@@ -745,10 +743,10 @@ void WriteAttitude(Writer& w, const ReportData& d, const TimeAxis& ta,
       }
     }
     if (first < d.lat_deg.size()) {
-      SeriesStyle start = Style("#2f855a");
+      SeriesStyle start = Style(kReportColourStart);
       start.marker_radius_px = 4.5;
       plot.AddPoints("start", {d.lon_deg[first]}, {d.lat_deg[first]}, {}, start);
-      SeriesStyle end = Style("#9b2c2c");
+      SeriesStyle end = Style(kReportColourEnd);
       end.marker_radius_px = 4.5;
       plot.AddPoints("end", {d.lon_deg[last]}, {d.lat_deg[last]}, {}, end);
     } else {

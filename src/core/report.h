@@ -41,6 +41,22 @@ struct ReportSpan {
   std::string label;  // "pitch", "roll", "yaw", or any short text
 };
 
+// The report's palette (hex RGB), used by every plot: "before" is always
+// terracotta and "after" always deep blue. Public so tests can look for
+// these colours in a rendered page.
+inline constexpr const char* kReportColourBefore = "#c8553d";
+inline constexpr const char* kReportColourAfter = "#1b4965";
+inline constexpr const char* kReportColourPermanent = "#1b4965";
+inline constexpr const char* kReportColourInduced = "#5a8f29";
+inline constexpr const char* kReportColourEddy = "#8e4585";
+inline constexpr const char* kReportColourAux = "#b0703c";
+inline constexpr const char* kReportColourRoll = "#3d7ea6";
+inline constexpr const char* kReportColourPitch = "#d8903a";
+inline constexpr const char* kReportColourHeading = "#4f5d75";
+inline constexpr const char* kReportColourTrack = "#4f5d75";
+inline constexpr const char* kReportColourStart = "#2f855a";
+inline constexpr const char* kReportColourEnd = "#9b2c2c";
+
 // One time panel of band-passed total field before and after compensation:
 // one per heading for a calibration box (spans = its maneuvers), or one per
 // survey line or time window for apply.
