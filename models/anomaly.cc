@@ -117,6 +117,26 @@ double GeologyField::Value(double north_m, double east_m,
   return v;
 }
 
+void GeologyField::Evaluate(double north_m, double east_m, double alt_m,
+                            double* value, double* d_north,
+                            double* d_east) const {
+  const bool prepared = alt_m == prepared_alt_m_;
+  const double up = ContinuationHeight(alt_m);
+  double v = 0.0, gn = 0.0, ge = 0.0;
+  for (std::size_t c = 0; c < amplitude_.size(); ++c) {
+    const double a = prepared ? prepared_amplitude_[c]
+                              : amplitude_[c] * std::exp(-k_[c] * up);
+    const double arg = kn_[c] * north_m + ke_[c] * east_m + phase_[c];
+    const double cs = std::cos(arg), sn = std::sin(arg);
+    v += a * cs;
+    gn -= a * kn_[c] * sn;
+    ge -= a * ke_[c] * sn;
+  }
+  *value = v;
+  *d_north = gn;
+  *d_east = ge;
+}
+
 DiurnalVariation::DiurnalVariation(const DiurnalOptions& options,
                                    Random* rng)
     : options_(options),
@@ -132,6 +152,19 @@ double DiurnalVariation::Value(double t) const {
                   options_.phase_deg * (kTwoPi / 360.0));
   }
   return v;
+}
+
+void DiurnalVariation::Evaluate(double t, double* value, double* rate) const {
+  double v = 0.0, r = 0.0;
+  micropulsations_.Evaluate(t, &v, &r);
+  if (options_.amplitude_nT != 0.0 && options_.period_s > 0) {
+    const double w = kTwoPi / options_.period_s;
+    const double arg = w * t + options_.phase_deg * (kTwoPi / 360.0);
+    v += options_.amplitude_nT * std::sin(arg);
+    r += options_.amplitude_nT * w * std::cos(arg);
+  }
+  *value = v;
+  *rate = r;
 }
 
 Vec3 DipoleField(const DipoleSource& d, double north_m, double east_m,

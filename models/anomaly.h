@@ -62,6 +62,9 @@ class GeologyField {
   // Total-field anomaly (nT) at north_m, east_m (local plane of the map
   // origin) and alt_m.
   double Value(double north_m, double east_m, double alt_m) const;
+  // Value and its horizontal gradient (nT/m) at the given point.
+  void Evaluate(double north_m, double east_m, double alt_m, double* value,
+                double* d_north, double* d_east) const;
   // Precomputes the continuation to alt_m, which makes Value at exactly
   // that height cheaper (the same result).
   void PrepareHeight(double alt_m);
@@ -92,6 +95,8 @@ class DiurnalVariation {
   DiurnalVariation(const DiurnalOptions& options, Random* rng);
   // t_s: seconds after 00:00 UTC of the simulated date.
   double Value(double t_s) const;
+  // Value and time derivative (nT/s).
+  void Evaluate(double t_s, double* value, double* rate) const;
 
  private:
   DiurnalOptions options_;

@@ -294,35 +294,30 @@ void PlatformSimulator::TrackAt(double t, double* north_m,
   *east_m = track_east_m_[i] + h * (v0.y + 4.0 * vm.y + v1.y);
 }
 
-Vec3 PlatformSimulator::AmbientNed(double t, double north_m, double east_m,
-                                   Vec3* earth, double* geology,
-                                   double* diurnal) const {
+// Main field (into *main) and main field plus dipoles (returned), NED.
+Vec3 PlatformSimulator::MainAndDipoles(double t, double north_m,
+                                       double east_m, Vec3* main) const {
   const EnvironmentOptions& env = config_.environment;
   const double alt = config_.start_alt_m;
-  Vec3 main;
   if (env.main_field) {
-    const double lat = origin_lat_deg_ + north_m / meridian_radius_m_ * kRadToDeg;
-    const double lon = origin_lon_deg_ + east_m / parallel_radius_m_ * kRadToDeg;
+    const double lat =
+        origin_lat_deg_ + north_m / meridian_radius_m_ * kRadToDeg;
+    const double lon =
+        origin_lon_deg_ + east_m / parallel_radius_m_ * kRadToDeg;
     const double year =
         config_.decimal_year_at_midnight +
         (config_.start_time_s + t) / (config_.year_length_days * 86400.0);
     const GeomagneticField g =
         MagneticModel::Wmm2025().Field(lat, lon, alt, year);
-    main = {g.x_nT, g.y_nT, g.z_nT};
+    *main = {g.x_nT, g.y_nT, g.z_nT};
   } else {
-    main = env.fixed_field_ned_nT;
+    *main = env.fixed_field_ned_nT;
   }
-  const Vec3 unit = (1.0 / Norm(main)) * main;
-  const double g = geology_.Value(north_m, east_m, alt);
-  const double d = diurnal_.Value(config_.start_time_s + t);
-  Vec3 dipoles;
+  Vec3 total = *main;
   for (const DipoleSource& s : env.dipoles) {
-    dipoles = dipoles + DipoleField(s, north_m, east_m, alt);
+    total = total + DipoleField(s, north_m, east_m, alt);
   }
-  if (earth) *earth = main;
-  if (geology) *geology = g + Dot(unit, dipoles);
-  if (diurnal) *diurnal = d;
-  return main + (g + d) * unit + dipoles;
+  return total;
 }
 
 PhysicsState PlatformSimulator::Evaluate(double t) const {
@@ -347,16 +342,33 @@ PhysicsState PlatformSimulator::Evaluate(double t) const {
   s.lon_deg = origin_lon_deg_ + s.east_m / parallel_radius_m_ * kRadToDeg;
   s.lon_deg -= 360.0 * std::floor((s.lon_deg + 180.0) / 360.0);
   s.alt_m = config_.start_alt_m;
-  s.ambient_ned = AmbientNed(t, s.north_m, s.east_m, &s.earth_ned,
-                             &s.geology_nT, &s.diurnal_nT);
-  // Rate of the ambient field along the track (central difference).
+  // Ambient field B = W + (g + d) e + dipoles and its rate along the track.
+  Vec3 main;
+  const Vec3 main_dipoles = MainAndDipoles(t, s.north_m, s.east_m, &main);
   const double h = kAmbientStep_s;
   double n1, e1, n0, e0;
   TrackAt(t + h, &n1, &e1);
   TrackAt(t - h, &n0, &e0);
-  const Vec3 after = AmbientNed(t + h, n1, e1, nullptr, nullptr, nullptr);
-  const Vec3 before = AmbientNed(t - h, n0, e0, nullptr, nullptr, nullptr);
-  s.ambient_ned_rate = (0.5 / h) * (after - before);
+  Vec3 main1, main0;
+  const Vec3 after = MainAndDipoles(t + h, n1, e1, &main1);
+  const Vec3 before = MainAndDipoles(t - h, n0, e0, &main0);
+  const Vec3 main_dipoles_rate = (0.5 / h) * (after - before);
+  const Vec3 main_rate = (0.5 / h) * (main1 - main0);
+  const double main_norm = Norm(main);
+  const Vec3 unit = (1.0 / main_norm) * main;
+  const Vec3 unit_rate =
+      (1.0 / main_norm) * (main_rate - Dot(unit, main_rate) * unit);
+  double g = 0.0, g_north = 0.0, g_east = 0.0, d = 0.0, d_rate = 0.0;
+  geology_.Evaluate(s.north_m, s.east_m, s.alt_m, &g, &g_north, &g_east);
+  diurnal_.Evaluate(config_.start_time_s + t, &d, &d_rate);
+  const Vec3 velocity = TrackVelocity(t);
+  const double g_rate = g_north * velocity.x + g_east * velocity.y;
+  s.earth_ned = main;
+  s.ambient_ned = main_dipoles + (g + d) * unit;
+  s.ambient_ned_rate =
+      main_dipoles_rate + (g_rate + d_rate) * unit + (g + d) * unit_rate;
+  s.geology_nT = g + Dot(unit, main_dipoles - main);
+  s.diurnal_nT = d;
 
   const Mat3 c = NedToBody(att);
   s.earth_body = Multiply(c, s.earth_ned);

@@ -18,10 +18,12 @@
 //      main-field direction (the total-field anomaly approximation).
 //   3. Body frame: b = C_bn B (models/attitude.h) and its time derivative
 //        b' = -w x b + C_bn B',
-//      w the body rate from the Euler rates (exact), B' by a central
-//      difference of B along the track over +-kAmbientStep_s (B changes
-//      slowly: error (w h)^2 / 6 relative for a feature of angular
-//      frequency w, below 1e-4 for every scenario here).
+//      w the body rate from the Euler rates (exact). B' along the track:
+//      geology and diurnal terms analytically (gradient . velocity, time
+//      derivative), the main field and dipoles by a central difference over
+//      +-kAmbientStep_s (error (w h)^2 / 6 relative for a feature passed at
+//      angular frequency w: below 1e-5 for every scenario here), and the
+//      turning of the main-field direction e' = (W' - e (e.W')) / |W|.
 //   4. Platform field at the sensor, body frame, nT:
 //        h = p + M b + E b' + sum_k I_k(t) g_k
 //      p permanent (nT), M induced (dimensionless; h_i = sum_j M_ij b_j),
@@ -241,8 +243,8 @@ class PlatformSimulator {
 
  private:
   void TrackAt(double t, double* north_m, double* east_m) const;
-  Vec3 AmbientNed(double t, double north_m, double east_m, Vec3* earth,
-                  double* geology, double* diurnal) const;
+  Vec3 MainAndDipoles(double t, double north_m, double east_m,
+                      Vec3* main) const;
   Vec3 TrackVelocity(double t) const;
 
   SimulatorConfig config_;

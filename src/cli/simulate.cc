@@ -5,6 +5,7 @@
 #include <memory>
 #include <string>
 
+#include "io/error.h"
 #include "io/recording.h"
 #include "src/cli/commands.h"
 #include "src/core/cautions.h"
@@ -22,17 +23,30 @@ struct SimulateArgs {
 };
 
 int RunSimulate(const SimulateArgs& args, bool seed_given) {
-  // Refuse an unknown extension before the work is done.
-  io::FormatFromPath(args.output);
-  if (!args.truth.empty()) io::FormatFromPath(args.truth);
+  // Refuse an unknown extension before the work is done (a usage error).
+  const auto check_format = [](const std::string& option,
+                               const std::string& path) {
+    if (path == "-") return;
+    try {
+      io::FormatFromPath(path);
+    } catch (const io::InputError& e) {
+      throw CLI::ValidationError(option, e.what());
+    }
+  };
+  check_format("--output", args.output);
+  if (!args.truth.empty()) check_format("--truth", args.truth);
   core::SimulateOptions options;
   options.override_seed = seed_given;
   options.seed = args.seed;
   const core::SimulatedFlight flight =
       core::SimulateScenarioFile(args.scenario, options);
+  // The comment names the scenario by its file name only, so that the
+  // output does not depend on the directory it was made from.
+  const std::string base =
+      args.scenario.substr(args.scenario.find_last_of('/') + 1);
   io::WriteOptions write;
-  write.comment = "simulated by fluxtrim from " + args.scenario + " (" +
-                  flight.name + ", seed " + std::to_string(flight.seed) + ")";
+  write.comment = "simulated by fluxtrim from " + base + " (" + flight.name +
+                  ", seed " + std::to_string(flight.seed) + ")";
   io::WriteRecording(args.output, flight.recording, write);
   if (!args.truth.empty()) {
     io::WriteOptions truth_write;

@@ -765,7 +765,7 @@ SimulatedFlight BuildTables(const proto::Scenario& s, const Plan& plan,
   SimulatedFlight flight;
   const std::size_t n = r.time_s.size();
   io::Table& rec = flight.recording;
-  Fill(Add(&rec, "time", "s", "seconds after 00:00 UTC"), r.time_s,
+  Fill(Add(&rec, "time", "s", "seconds after midnight UTC"), r.time_s,
        plan.time_decimals);
   std::vector<double> bx(n), by(n), bz(n);
   for (std::size_t i = 0; i < n; ++i) {
@@ -773,20 +773,20 @@ SimulatedFlight BuildTables(const proto::Scenario& s, const Plan& plan,
     by[i] = r.fluxgate_nT[i].y;
     bz[i] = r.fluxgate_nT[i].z;
   }
-  Fill(Add(&rec, "bx", "nT", "fluxgate x (forward), raw"), bx,
+  Fill(Add(&rec, "bx", "nT", "fluxgate x (forward) raw"), bx,
        plan.fluxgate_decimals);
-  Fill(Add(&rec, "by", "nT", "fluxgate y (starboard), raw"), by,
+  Fill(Add(&rec, "by", "nT", "fluxgate y (starboard) raw"), by,
        plan.fluxgate_decimals);
-  Fill(Add(&rec, "bz", "nT", "fluxgate z (down), raw"), bz,
+  Fill(Add(&rec, "bz", "nT", "fluxgate z (down) raw"), bz,
        plan.fluxgate_decimals);
   if (plan.config.scalar.present) {
     Fill(Add(&rec, "f", "nT", "scalar magnetometer"), r.scalar_nT,
          plan.scalar_decimals);
   }
   if (plan.log_attitude) {
-    Fill(Add(&rec, "roll", "deg", "roll, starboard down positive"),
+    Fill(Add(&rec, "roll", "deg", "roll (starboard down positive)"),
          r.roll_deg, plan.attitude_decimals);
-    Fill(Add(&rec, "pitch", "deg", "pitch, nose up positive"), r.pitch_deg,
+    Fill(Add(&rec, "pitch", "deg", "pitch (nose up positive)"), r.pitch_deg,
          plan.attitude_decimals);
     std::vector<double> heading(n);
     for (std::size_t i = 0; i < n; ++i) {
@@ -812,7 +812,7 @@ SimulatedFlight BuildTables(const proto::Scenario& s, const Plan& plan,
 
   io::Table& truth = flight.truth;
   const int d = plan.truth_decimals;
-  Fill(Add(&truth, "time", "s", "seconds after 00:00 UTC"), r.time_s,
+  Fill(Add(&truth, "time", "s", "seconds after midnight UTC"), r.time_s,
        plan.time_decimals);
   Fill(Add(&truth, "f_interference_true", "nT",
            "platform interference on the total field"),
@@ -831,11 +831,11 @@ SimulatedFlight BuildTables(const proto::Scenario& s, const Plan& plan,
     ez[i] = r.earth_body_nT[i].z;
     kind[i] = r.maneuver_kind[i];
   }
-  Fill(Add(&truth, "earth_bx", "nT", "main field, body x"), ex, d);
-  Fill(Add(&truth, "earth_by", "nT", "main field, body y"), ey, d);
-  Fill(Add(&truth, "earth_bz", "nT", "main field, body z"), ez, d);
+  Fill(Add(&truth, "earth_bx", "nT", "main field in body x"), ex, d);
+  Fill(Add(&truth, "earth_by", "nT", "main field in body y"), ey, d);
+  Fill(Add(&truth, "earth_bz", "nT", "main field in body z"), ez, d);
   Fill(Add(&truth, "maneuver_kind", "",
-           "0 none, 1 pitch, 2 roll, 3 yaw, 4 rotation"),
+           "0 none 1 pitch 2 roll 3 yaw 4 rotation"),
        kind, 0);
   Fill(Add(&truth, "maneuver_heading_deg", "deg",
            "reference heading of the maneuver"),
