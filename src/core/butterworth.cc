@@ -56,13 +56,13 @@ std::vector<Complex> CplxReal(std::vector<Complex> z) {
     throw std::logic_error("butterworth: unpaired complex root");
   }
   // Within runs of (nearly) equal real part, order by |imag| (as scipy).
-  auto sort_runs = [](std::vector<Complex>* v, const std::vector<Complex>& ref) {
+  auto sort_runs = [](std::vector<Complex>* v,
+                      const std::vector<Complex>& ref) {
     std::size_t start = 0;
     while (start < v->size()) {
       std::size_t stop = start + 1;
-      while (stop < ref.size() &&
-             ref[stop].real() - ref[stop - 1].real() <=
-                 kRealTol * std::abs(ref[stop - 1])) {
+      while (stop < ref.size() && ref[stop].real() - ref[stop - 1].real() <=
+                                      kRealTol * std::abs(ref[stop - 1])) {
         ++stop;
       }
       std::stable_sort(v->begin() + start, v->begin() + stop,
@@ -122,8 +122,7 @@ std::array<double, 6> SingleSection(const std::vector<Complex>& z,
 // Poles closest to the unit circle go to the last sections; each pole pair
 // takes the zeros nearest to it.
 std::vector<std::array<double, 6>> ZpkToSos(std::vector<Complex> z,
-                                            std::vector<Complex> p,
-                                            double k) {
+                                            std::vector<Complex> p, double k) {
   const std::size_t n_sections = (std::max(p.size(), z.size()) + 1) / 2;
   z = CplxReal(z);
   p = CplxReal(p);
@@ -153,8 +152,8 @@ std::vector<std::array<double, 6>> ZpkToSos(std::vector<Complex> z,
       const Complex z1 = z[z1_idx];
       z.erase(z.begin() + z1_idx);
       sos[si] = SingleSection({z1, 0.0}, {p1, 0.0});
-    } else if (p.size() + 1 == z.size() && !IsReal(p1) &&
-               count_real(p) == 1 && count_real(z) == 1) {
+    } else if (p.size() + 1 == z.size() && !IsReal(p1) && count_real(p) == 1 &&
+               count_real(z) == 1) {
       // One real pole and one real zero left: must take a complex zero.
       const std::size_t z1_idx = NearestIndex(z, p1, Which::kComplex);
       const Complex z1 = z[z1_idx];
@@ -212,8 +211,7 @@ std::array<double, 2> SectionZi(const std::array<double, 6>& s) {
 // scipy.signal.sosfilt with initial state zi (direct form II transposed,
 // section after section for each sample). zi is consumed.
 void SosFilt(const std::vector<std::array<double, 6>>& sos,
-             std::vector<std::array<double, 2>>* zi, double* x,
-             std::size_t n) {
+             std::vector<std::array<double, 2>>* zi, double* x, std::size_t n) {
   for (std::size_t i = 0; i < n; ++i) {
     double v = x[i];
     for (std::size_t s = 0; s < sos.size(); ++s) {
@@ -251,8 +249,9 @@ BandPass::BandPass(const BandPassOptions& options, double sample_rate_hz) {
   std::string error;
   if (!options.IsValid(&error)) throw std::invalid_argument(error);
   if (!(std::isfinite(sample_rate_hz) && sample_rate_hz > 0)) {
-    throw std::invalid_argument("band-pass: sample rate must be positive, got " +
-                                std::to_string(sample_rate_hz));
+    throw std::invalid_argument(
+        "band-pass: sample rate must be positive, got " +
+        std::to_string(sample_rate_hz));
   }
   order_ = options.order;
   rate_hz_ = sample_rate_hz;

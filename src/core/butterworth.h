@@ -98,7 +98,7 @@ class BandPass {
   // (direct form II transposed, 2 states per section).
   std::vector<std::array<double, 2>> zi_;
   // Zeros, poles and gain of the digital filter (for TransferFunction).
-  std::vector<double> zeros_real_;  // all zeros are real (+1 and -1)
+  std::vector<double> zeros_real_;            // all zeros are real (+1 and -1)
   std::vector<std::array<double, 2>> poles_;  // {re, im}
   double gain_ = 0;
 };

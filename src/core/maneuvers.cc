@@ -79,7 +79,8 @@ CircularStats Circular(const double* deg, std::size_t n) {
   }
   CircularStats stats;
   stats.mean_deg = Wrap360(std::atan2(s, c) * kDeg);
-  const double r = std::min(1.0, std::hypot(s, c) / std::max<std::size_t>(n, 1));
+  const double r =
+      std::min(1.0, std::hypot(s, c) / std::max<std::size_t>(n, 1));
   stats.spread_deg = r > 0 ? std::sqrt(-2.0 * std::log(r)) * kDeg : 180.0;
   return stats;
 }
@@ -87,10 +88,10 @@ CircularStats Circular(const double* deg, std::size_t n) {
 // One gap-free stretch of the recording, reduced to what the segmentation
 // needs.
 struct Piece {
-  std::vector<double> t;             // s
-  std::vector<Vec3> w;               // deviation vector (deg)
+  std::vector<double> t;                       // s
+  std::vector<Vec3> w;                         // deviation vector (deg)
   std::vector<std::array<Vec3, kKinds>> axis;  // roll/pitch/yaw axes as seen
-  std::vector<double> heading_deg;   // unwrapped heading (deg)
+  std::vector<double> heading_deg;             // unwrapped heading (deg)
 };
 
 struct Segment {
@@ -111,9 +112,9 @@ std::string Fixed(double v, int digits) {
 }
 
 struct Counters {
-  std::size_t turns = 0;       // segments dropped as turns
-  std::size_t short_ones = 0;  // segments dropped as too short
-  double max_rms_deg = 0;      // largest windowed deviation RMS seen
+  std::size_t turns = 0;         // segments dropped as turns
+  std::size_t short_ones = 0;    // segments dropped as too short
+  double max_rms_deg = 0;        // largest windowed deviation RMS seen
   std::size_t by_amplitude = 0;  // kinds told apart by amplitude only
 };
 
@@ -166,11 +167,10 @@ void SegmentPiece(const Piece& piece, double rms_threshold_deg,
         continue;
       }
       // u^T M u / |d|^2 with u = d / |d|.
-      const double e =
-          (d[0] * d[0] * m[0][i] + d[1] * d[1] * m[1][i] +
-           d[2] * d[2] * m[2][i] + 2 * d[0] * d[1] * m[3][i] +
-           2 * d[0] * d[2] * m[4][i] + 2 * d[1] * d[2] * m[5][i]) /
-          d2;
+      const double e = (d[0] * d[0] * m[0][i] + d[1] * d[1] * m[1][i] +
+                        d[2] * d[2] * m[2][i] + 2 * d[0] * d[1] * m[3][i] +
+                        2 * d[0] * d[2] * m[4][i] + 2 * d[1] * d[2] * m[5][i]) /
+                       d2;
       energy[k][i] = std::max(e, 0.0);
       share[k] = total > 0 ? energy[k][i] / total : 0;
       // Implied peak body angle of a sine with this RMS.
@@ -254,9 +254,8 @@ void SegmentPiece(const Piece& piece, double rms_threshold_deg,
     seg.begin = b;
     seg.end = last + 1;
     seg.start_s = CrossingTime(piece.t, e, b, level);
-    seg.end_s = last + 1 < n
-                    ? CrossingTime(piece.t, e, last + 1, level)
-                    : piece.t[last];
+    seg.end_s = last + 1 < n ? CrossingTime(piece.t, e, last + 1, level)
+                             : piece.t[last];
     floor_index = seg.end;
     if (seg.end_s - seg.start_s < options.min_duration_s) {
       ++counters->short_ones;
@@ -291,9 +290,8 @@ void SegmentPiece(const Piece& piece, double rms_threshold_deg,
       continue;
     }
     seg.heading_deg = stats.mean_deg;
-    const std::size_t ambiguous = static_cast<std::size_t>(
-        std::count(by_amplitude.begin() + seg.begin,
-                   by_amplitude.begin() + seg.end, 1));
+    const std::size_t ambiguous = static_cast<std::size_t>(std::count(
+        by_amplitude.begin() + seg.begin, by_amplitude.begin() + seg.end, 1));
     if (2 * ambiguous > count) ++counters->by_amplitude;
     out->push_back(seg);
   }
@@ -327,7 +325,8 @@ std::vector<std::size_t> PieceBreaks(const std::vector<double>& t,
 }
 
 std::string Lower(std::string s) {
-  for (char& c : s) c = static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
+  for (char& c : s)
+    c = static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
   return s;
 }
 
@@ -437,7 +436,8 @@ ManeuverDetection DetectManeuvers(const io::Table& recording,
     const auto& by = recording.Column("by");
     const auto& bz = recording.Column("bz");
     for (std::size_t i = 0; i < n; ++i) {
-      const double norm = std::sqrt(bx[i] * bx[i] + by[i] * by[i] + bz[i] * bz[i]);
+      const double norm =
+          std::sqrt(bx[i] * bx[i] + by[i] * by[i] + bz[i] * bz[i]);
       raw[i] = {bx[i] / norm, by[i] / norm, bz[i] / norm};
       if (!(norm > 0)) valid[i] = false;
     }
@@ -488,9 +488,9 @@ ManeuverDetection DetectManeuvers(const io::Table& recording,
       for (std::size_t i = 0; i < len; ++i) {
         ch[0][i] = raw[b + i][0];
         ch[1][i] = raw[b + i][1];
-        ch[2][i] = i == 0 ? raw[b][2]
-                          : ch[2][i - 1] + AngleDiff(raw[b + i][2],
-                                                      raw[b + i - 1][2]);
+        ch[2][i] =
+            i == 0 ? raw[b][2]
+                   : ch[2][i - 1] + AngleDiff(raw[b + i][2], raw[b + i - 1][2]);
       }
       std::vector<double> mean[3];
       for (int k = 0; k < 3; ++k) mean[k] = RunningMean(ch[k], half);
@@ -584,7 +584,8 @@ ManeuverDetection DetectManeuvers(const io::Table& recording,
     result.notes.push_back(
         "no maneuvers found (largest windowed " +
         std::string(attitude ? "attitude" : "field-direction") +
-        " deviation RMS " + Fixed(counters.max_rms_deg, 2) + " deg; threshold " +
+        " deviation RMS " + Fixed(counters.max_rms_deg, 2) +
+        " deg; threshold " +
         Fixed(attitude ? options.min_rms_deg : options.min_rms_fluxgate_deg,
               2) +
         " deg)");
@@ -658,7 +659,8 @@ std::vector<Maneuver> ReadSegmentsCsv(const std::string& path) {
       // Trim blanks and one pair of double quotes.
       std::size_t a = 0, b = text.size();
       while (a < b && std::isspace(static_cast<unsigned char>(text[a]))) ++a;
-      while (b > a && std::isspace(static_cast<unsigned char>(text[b - 1]))) --b;
+      while (b > a && std::isspace(static_cast<unsigned char>(text[b - 1])))
+        --b;
       if (b - a >= 2 && text[a] == '"' && text[b - 1] == '"') {
         ++a;
         --b;
@@ -736,9 +738,9 @@ std::vector<Maneuver> ReadSegmentsCsv(const std::string& path) {
     m.start_s = values[0];
     m.end_s = values[1];
     if (!(m.end_s > m.start_s)) {
-      throw io::InputError(path, line_no, fields[index[1]].column,
-                           "end_s must be after start_s (" +
-                               fields[index[0]].text + ")");
+      throw io::InputError(
+          path, line_no, fields[index[1]].column,
+          "end_s must be after start_s (" + fields[index[0]].text + ")");
     }
     if (!(values[2] >= -360.0 && values[2] <= 720.0)) {
       throw io::InputError(path, line_no, fields[index[2]].column,
@@ -748,9 +750,9 @@ std::vector<Maneuver> ReadSegmentsCsv(const std::string& path) {
     m.heading_deg = Wrap360(values[2]);
     const Field& kf = fields[index[3]];
     if (!ParseManeuverKind(kf.text, &m.kind)) {
-      throw io::InputError(path, line_no, kf.column,
-                           "expected kind pitch, roll or yaw, found '" +
-                               kf.text + "'");
+      throw io::InputError(
+          path, line_no, kf.column,
+          "expected kind pitch, roll or yaw, found '" + kf.text + "'");
     }
     out.push_back(m);
   }

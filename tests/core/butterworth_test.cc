@@ -35,9 +35,8 @@ constexpr double kOutputTolNt = 1e-8;
 
 bool HaveScipy() {
   static const bool have = [] {
-    const std::string cmd =
-        std::string(FLUXTRIM_PYTHON) +
-        " -c 'import scipy.signal' >/dev/null 2>&1";
+    const std::string cmd = std::string(FLUXTRIM_PYTHON) +
+                            " -c 'import scipy.signal' >/dev/null 2>&1";
     return std::system(cmd.c_str()) == 0;
   }();
   return have;
@@ -50,8 +49,8 @@ std::string Num(double v) {
 }
 
 std::string DesignSpec(int order, double low, double high, double rate) {
-  return "design:" + std::to_string(order) + ":" + Num(low) + ":" +
-         Num(high) + ":" + Num(rate);
+  return "design:" + std::to_string(order) + ":" + Num(low) + ":" + Num(high) +
+         ":" + Num(rate);
 }
 
 std::string FilterSpec(int order, double rate, int n, int seed) {
@@ -63,9 +62,8 @@ struct Case {
   double rate_hz;
   int order;
 };
-const Case kTransferCases[] = {{10, 1},  {10, 2},  {10, 3}, {10, 4},
-                               {10, 5},  {10, 6},  {100, 2}, {100, 4},
-                               {100, 6}, {1, 4}};
+const Case kTransferCases[] = {{10, 1}, {10, 2},  {10, 3},  {10, 4},  {10, 5},
+                               {10, 6}, {100, 2}, {100, 4}, {100, 6}, {1, 4}};
 const Case kSectionCases[] = {{10, 1}, {10, 2},  {10, 3},  {10, 4}, {10, 5},
                               {10, 6}, {100, 4}, {100, 5}, {400, 6}};
 constexpr double kClipRateHz = 2.0;
@@ -156,8 +154,8 @@ TEST(BandPass, TransferFunctionMatchesScipyButterBa) {
     std::vector<double> b, a;
     filter.TransferFunction(&b, &a);
     const Arrays& ref = Ref(DesignSpecFor(c));
-    const std::string what = "rate " + std::to_string(c.rate_hz) +
-                             " order " + std::to_string(c.order);
+    const std::string what = "rate " + std::to_string(c.rate_hz) + " order " +
+                             std::to_string(c.order);
     ExpectCoefficientsNear(b, ref.at("b"), what + " b");
     ExpectCoefficientsNear(a, ref.at("a"), what + " a");
   }
@@ -298,7 +296,8 @@ TEST(BandPass, ForwardBackwardGainIsHalfAtBandEdgesAndOneAtCentre) {
   struct Tone {
     double hz, gain;
   };
-  for (const Tone& tone : {Tone{0.1, 0.5}, Tone{0.9, 0.5}, Tone{centre_hz, 1}}) {
+  for (const Tone& tone :
+       {Tone{0.1, 0.5}, Tone{0.9, 0.5}, Tone{centre_hz, 1}}) {
     const std::size_t n = 40000;  // 4000 s: ends are far from the middle
     std::vector<double> x(n);
     for (std::size_t i = 0; i < n; ++i) {
@@ -327,7 +326,8 @@ TEST(BandPass, ForwardBackwardGainIsHalfAtBandEdgesAndOneAtCentre) {
 TEST(BandPass, OutputMayOverwriteItsInput) {
   const BandPass filter(BandPassOptions{}, 10.0);
   std::vector<double> x(500);
-  for (std::size_t i = 0; i < x.size(); ++i) x[i] = std::sin(0.3 * i) + 0.01 * i;
+  for (std::size_t i = 0; i < x.size(); ++i)
+    x[i] = std::sin(0.3 * i) + 0.01 * i;
   const std::vector<double> expected = filter.Filter(x);
   filter.Filter(x.data(), x.size(), x.data());
   EXPECT_EQ(x, expected);
@@ -337,8 +337,8 @@ TEST(BandPass, GapsSplitTheSignalIntoIndependentlyFilteredRuns) {
   const BandPass filter(BandPassOptions{}, 10.0);
   std::vector<double> x(400);
   for (std::size_t i = 0; i < x.size(); ++i) x[i] = std::cos(0.2 * i) + 3.0;
-  x[200] = std::nan("");          // gap splitting [0,200) and [201,400)
-  x[380] = std::nan("");          // leaves [381,400): too short to filter
+  x[200] = std::nan("");  // gap splitting [0,200) and [201,400)
+  x[380] = std::nan("");  // leaves [381,400): too short to filter
   std::size_t unfiltered = 0;
   const std::vector<double> y = filter.FilterWithGaps(x, &unfiltered);
   const std::vector<double> first =

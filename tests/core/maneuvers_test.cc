@@ -81,8 +81,8 @@ Flight MakeBox(const std::vector<double>& legs_deg, double rate_hz,
     const double end = now + seconds;
     while (now < end - 1e-9) emit(0, 0, heading);
   };
-  auto maneuver = [&](ManeuverKind kind, double amplitude_deg,
-                      double period_s, int cycles) {
+  auto maneuver = [&](ManeuverKind kind, double amplitude_deg, double period_s,
+                      int cycles) {
     const double start = now;
     const double end = now + period_s * cycles;
     const double ramp_s = style.ramp_periods * period_s;
@@ -93,12 +93,12 @@ Flight MakeBox(const std::vector<double>& legs_deg, double rate_hz,
                      : 1.0;
       const double a =
           envelope * amplitude_deg * std::sin(2 * kPi * tau / period_s);
-      const double roll = kind == ManeuverKind::kRoll ? a
+      const double roll = kind == ManeuverKind::kRoll  ? a
                           : kind == ManeuverKind::kYaw ? style.coupling * a
-                                                        : 0;
-      const double yaw = kind == ManeuverKind::kYaw ? a
+                                                       : 0;
+      const double yaw = kind == ManeuverKind::kYaw    ? a
                          : kind == ManeuverKind::kRoll ? -style.coupling * a
-                                                        : 0;
+                                                       : 0;
       emit(roll, kind == ManeuverKind::kPitch ? a : 0, heading + yaw);
     }
     f.truth.push_back({kind, Wrap(heading), start, end});
@@ -192,9 +192,9 @@ void ExpectMatchesTruth(const ManeuverDetection& found,
   for (std::size_t i = 0; i < truth.size(); ++i) {
     const Maneuver& m = found.maneuvers[i];
     const Truth& t = truth[i];
-    EXPECT_EQ(m.kind, t.kind) << "maneuver " << i << " found "
-                              << ManeuverKindName(m.kind) << " expected "
-                              << ManeuverKindName(t.kind);
+    EXPECT_EQ(m.kind, t.kind)
+        << "maneuver " << i << " found " << ManeuverKindName(m.kind)
+        << " expected " << ManeuverKindName(t.kind);
     EXPECT_LE(AngleDistance(m.heading_deg, t.heading_deg), kHeadingTolDeg)
         << "maneuver " << i << " heading " << m.heading_deg;
     EXPECT_GE(m.heading_deg, 0.0);
@@ -234,13 +234,12 @@ TEST(DetectManeuvers, FindsBoxOfAPilotWhoRampsAndCouplesTheMotion) {
   ASSERT_EQ(found.maneuvers.size(), f.truth.size());
   for (std::size_t i = 0; i < f.truth.size(); ++i) {
     EXPECT_EQ(found.maneuvers[i].kind, f.truth[i].kind) << i;
-    EXPECT_LE(AngleDistance(found.maneuvers[i].heading_deg,
-                            f.truth[i].heading_deg),
-              kHeadingTolDeg);
+    EXPECT_LE(
+        AngleDistance(found.maneuvers[i].heading_deg, f.truth[i].heading_deg),
+        kHeadingTolDeg);
     EXPECT_NEAR(found.maneuvers[i].start_s, f.truth[i].start_s,
                 kRampBoundaryTolS);
-    EXPECT_NEAR(found.maneuvers[i].end_s, f.truth[i].end_s,
-                kRampBoundaryTolS);
+    EXPECT_NEAR(found.maneuvers[i].end_s, f.truth[i].end_s, kRampBoundaryTolS);
     // Inside the flown span, never outside it by more than rounding.
     EXPECT_GE(found.maneuvers[i].start_s, f.truth[i].start_s - 0.5) << i;
     EXPECT_LE(found.maneuvers[i].end_s, f.truth[i].end_s + 0.5) << i;
@@ -328,13 +327,12 @@ std::string WriteFile(const std::string& name, const std::string& text) {
 }
 
 TEST(ReadSegmentsCsv, ReadsColumnsInAnyOrderWithCommentsAndCrlf) {
-  const std::string path = WriteFile(
-      "good",
-      "# box flown 2031-05-04\r\n"
-      "kind, heading_deg ,start_s,end_s\r\n"
-      "\r\n"
-      "roll,90,200.5,230\r\n"
-      "\"Pitch\",-90,100,130.25\r\n");
+  const std::string path = WriteFile("good",
+                                     "# box flown 2031-05-04\r\n"
+                                     "kind, heading_deg ,start_s,end_s\r\n"
+                                     "\r\n"
+                                     "roll,90,200.5,230\r\n"
+                                     "\"Pitch\",-90,100,130.25\r\n");
   const std::vector<Maneuver> m = ReadSegmentsCsv(path);
   ASSERT_EQ(m.size(), 2u);
   EXPECT_EQ(m[0].kind, ManeuverKind::kPitch);  // sorted by start
@@ -357,8 +355,7 @@ void ExpectInputError(const std::string& name, const std::string& text,
     EXPECT_EQ(e.line(), line) << e.what();
     EXPECT_EQ(e.column(), column) << e.what();
     EXPECT_NE(std::string(e.what()).find(path), std::string::npos) << e.what();
-    EXPECT_NE(std::string(e.what()).find(words), std::string::npos)
-        << e.what();
+    EXPECT_NE(std::string(e.what()).find(words), std::string::npos) << e.what();
   }
   std::remove(path.c_str());
 }

@@ -57,8 +57,8 @@ TEST(ManeuverPeakToPeak, UsesSamplesInsideEachManeuverInclusive) {
   std::vector<double> time, before, after;
   for (int i = 0; i < 10; ++i) {
     time.push_back(i);
-    before.push_back(i);       // pp over [2, 5] = 3
-    after.push_back(i % 2);    // pp over [2, 5] = 1
+    before.push_back(i);     // pp over [2, 5] = 3
+    after.push_back(i % 2);  // pp over [2, 5] = 1
   }
   after[3] = kNaN;  // a gap in the compensated field only
   Maneuver pitch;
@@ -90,7 +90,7 @@ TEST(Fom, SumsPeakToPeakAndSkipsManeuversWithoutData) {
   m[1].pp_after_nT = 2.5;
   m[2].pp_before_nT = kNaN;
   m[2].pp_after_nT = kNaN;
-  EXPECT_EQ(Fom(m, /*after=*/true), 3.5);   // 1 + 2.5, by hand
+  EXPECT_EQ(Fom(m, /*after=*/true), 3.5);    // 1 + 2.5, by hand
   EXPECT_EQ(Fom(m, /*after=*/false), 30.0);  // 10 + 20
   EXPECT_TRUE(std::isnan(Fom({}, true)));
 }
