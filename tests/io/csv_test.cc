@@ -7,6 +7,7 @@
 
 #include <unistd.h>
 
+#include <charconv>
 #include <cmath>
 #include <cstdint>
 #include <cstdio>
@@ -310,6 +311,40 @@ TEST(CsvReader, ParsesNumbersExactlyAsPythonFloatDoes) {
     std::uint64_t expected = 0;
     ASSERT_TRUE(bits >> expected) << "python output ended at " << i;
     EXPECT_EQ(Bits(t.Column("x")[i]), expected) << texts[i];
+  }
+}
+
+TEST(CsvReader, ReadsPlainDecimalsExactlyAsStdFromChars) {
+  // The reader's fast path for [-]digits[.digits] must agree bit for bit
+  // with std::from_chars (the C++17 library's correctly rounded parser) on
+  // the numbers loggers write: up to 20 digits, any position of the point,
+  // around 2^53 where the fast path hands over.
+  std::mt19937_64 rng(53);
+  std::vector<std::string> texts = {"9007199254740992", "9007199254740993",
+                                    "900719925474099.3", "0.9007199254740993",
+                                    "-0.0", "0.", "-12.", ".5",
+                                    "1234567890123456789",
+                                    "0.0000000000000000000001234"};
+  for (int i = 0; i < 100000; ++i) {
+    const int digits = 1 + static_cast<int>(rng() % 20);
+    std::string s = (rng() % 2) ? "-" : "";
+    for (int d = 0; d < digits; ++d) s += static_cast<char>('0' + rng() % 10);
+    const std::size_t point = rng() % (static_cast<std::size_t>(digits) + 1);
+    s.insert(s.size() - point, ".");
+    texts.push_back(s);
+  }
+  std::string csv = "time,x\n";
+  for (std::size_t i = 0; i < texts.size(); ++i) {
+    csv += std::to_string(i) + "," + texts[i] + "\n";
+  }
+  const Table t = ReadAll(csv);
+  ASSERT_EQ(t.rows(), texts.size());
+  for (std::size_t i = 0; i < texts.size(); ++i) {
+    double expected = 0;
+    const std::string& s = texts[i];
+    const auto r = std::from_chars(s.data(), s.data() + s.size(), expected);
+    ASSERT_EQ(r.ec, std::errc()) << s;
+    ASSERT_EQ(Bits(t.Column("x")[i]), Bits(expected)) << s;
   }
 }
 
