@@ -1,19 +1,24 @@
 #!/usr/bin/python3
 """Renders an HTML report in headless Chromium and checks it.
 
-Two browser runs on the same window width:
-  1. an instrumented copy of the page (two small scripts added: one records
-     load errors, one measures every plot after the load event) is loaded
-     with --dump-dom; the measurements come back in the dumped DOM;
-  2. the page itself (no scripts) is rendered with --screenshot at the
-     page's full height, with Chromium's log on stderr.
-Then each plot's rectangle is cut from the screenshot and must be drawn:
-enough pixels that differ from its background, several colours, and the
-expected series colours where given.
+One browser run per page (two when the page is taller than the first
+window): a copy of the page with two small passive scripts added (one
+records load errors in capture phase, one measures every plot and the
+page after the load event and appends the numbers to the DOM) is loaded
+with --dump-dom and --screenshot together, with Chromium's log on stderr.
+The report itself has no scripts; the copy differs from it only by those
+two script elements, which draw nothing.
+
+Fails on: script errors, failed loads, any resource fetched at all (the
+page must be self-contained), console messages or network errors in the
+browser log, and on each listed plot that is missing, not an
+<svg class="plot">, tiny, blank (too few pixels unlike its background, or
+too few colours) or without the series colours expected for it.
 
 Exit status 0 when every check passes, 1 otherwise (reasons on stdout),
-2 for usage or browser trouble. Python standard library only; python3-pil
-makes the PNG decoding fast but is optional (a zlib decoder is built in).
+2 for usage or browser trouble. Needs only the Python standard library;
+python3-pil (PNG decoding) and python3-numpy (colour histograms) make it
+several times faster when present (a zlib PNG decoder is built in).
 """
 
 import argparse
@@ -50,7 +55,7 @@ TAIL_SCRIPT = """<script>addEventListener('load', function () {
   var de = document.documentElement;
   var out = {ids: {}, errors: __fluxtrimErrors,
              resources: performance.getEntriesByType('resource').map(function (r) { return r.name; }),
-             height: Math.ceil(Math.max(de.scrollHeight, document.body.scrollHeight)),
+             height: Math.ceil(document.body.getBoundingClientRect().bottom + scrollY + 24),
              width: de.clientWidth, plots: document.querySelectorAll('svg.plot').length};
   ids.forEach(function (id) {
     var el = document.getElementById(id);
@@ -145,16 +150,31 @@ class Screenshot:
         if x1 <= x0 or y1 <= y0:
             return {}
         if self._image is not None:
-            colours = self._image.crop((x0, y0, x1, y1)).getcolors(1 << 24)
-            return {c: n for n, c in colours}
-        counts, bpp = {}, self._bpp
-        for y in range(y0, y1):
-            row = self._rows[y]
-            for x in range(x0, x1):
-                i = x * bpp
-                p = (row[i], row[i + 1], row[i + 2])
+            rgb = self._image.crop((x0, y0, x1, y1)).tobytes()
+        else:
+            bpp = self._bpp
+            if bpp == 3:
+                rgb = b"".join(self._rows[y][3 * x0:3 * x1] for y in range(y0, y1))
+            else:  # drop alpha
+                rgb = bytearray()
+                for y in range(y0, y1):
+                    row = self._rows[y][4 * x0:4 * x1]
+                    for i in range(0, len(row), 4):
+                        rgb += row[i:i + 3]
+                rgb = bytes(rgb)
+        try:
+            import numpy as np  # fast histogram when NumPy is there
+            a = np.frombuffer(rgb, dtype=np.uint8).reshape(-1, 3).astype(np.uint32)
+            packed = (a[:, 0] << 16) | (a[:, 1] << 8) | a[:, 2]
+            values, counts = np.unique(packed, return_counts=True)
+            return {((int(v) >> 16) & 255, (int(v) >> 8) & 255, int(v) & 255): int(n)
+                    for v, n in zip(values, counts)}
+        except ImportError:
+            counts = {}
+            for i in range(0, len(rgb), 3):
+                p = (rgb[i], rgb[i + 1], rgb[i + 2])
                 counts[p] = counts.get(p, 0) + 1
-        return counts
+            return counts
 
 
 def hex_colour(s):
@@ -193,6 +213,8 @@ def main():
                     help="ID_PREFIX=#rrggbb,#rrggbb: colours every plot whose "
                          "id starts with ID_PREFIX must show")
     ap.add_argument("--width", type=int, default=1280)
+    ap.add_argument("--height", type=int, default=6000,
+                    help="first window height; a taller page gets a second run")
     ap.add_argument("--min-ink", type=float, default=0.02,
                     help="least fraction of a plot's pixels unlike its background")
     ap.add_argument("--min-colours", type=int, default=3,
@@ -216,7 +238,6 @@ def main():
         page = f.read()
     problems = []
 
-    # Run 1: measure the instrumented copy.
     work = tempfile.mkdtemp(prefix="fluxtrim_browser_")
     try:
         probe = page.replace("<head>", "<head>" + HEAD_SCRIPT, 1)
@@ -224,37 +245,39 @@ def main():
         probe_path = os.path.join(work, "probe.html")
         with open(probe_path, "w", encoding="utf-8") as f:
             f.write(probe)
-        rc, dom, err = run_chromium(
-            args.chromium, ["--window-size=%d,1000" % args.width, "--dump-dom",
-                            "file://" + probe_path], args.timeout)
-        m = re.search(r'<pre id="__fluxtrim_check">(.*?)</pre>', dom, re.S)
-        if rc != 0 or not m:
-            print("browser run 1 failed (exit %d); no measurements in the DOM" % rc)
-            print(err[-2000:])
-            return 2
-        info = json.loads(html.unescape(m.group(1)))
+        png_path = os.path.join(work, "page.png")
+        height = args.height
+        for attempt in range(2):
+            if os.path.exists(png_path):
+                os.remove(png_path)
+            rc, dom, err = run_chromium(
+                args.chromium, ["--enable-logging=stderr", "--v=0",
+                                "--window-size=%d,%d" % (args.width, height),
+                                "--dump-dom", "--screenshot=" + png_path,
+                                "file://" + probe_path], args.timeout)
+            m = re.search(r'<pre id="__fluxtrim_check">(.*?)</pre>', dom, re.S)
+            if rc != 0 or not m or not os.path.exists(png_path):
+                print("browser run failed (exit %d): no measurements or no "
+                      "screenshot" % rc)
+                print(err[-2000:])
+                return 2
+            info = json.loads(html.unescape(m.group(1)))
+            if info["height"] <= height:
+                break
+            height = int(info["height"]) + 40  # taller page: once more
         problems += ["page: " + e for e in info["errors"]]
         problems += ["page loaded a resource: " + r for r in info["resources"]]
         if info["plots"] != len(ids):
             problems.append("page has %d svg.plot elements, expected %d"
                             % (info["plots"], len(ids)))
-
-        # Run 2: screenshot of the page itself at full height.
-        height = max(600, int(info["height"]) + 20)
-        png_path = os.path.join(work, "page.png")
-        page_path = os.path.abspath(args.html)
-        rc, _, err = run_chromium(
-            args.chromium, ["--enable-logging=stderr", "--v=0",
-                            "--window-size=%d,%d" % (args.width, height),
-                            "--screenshot=" + png_path, "file://" + page_path],
-            args.timeout)
-        if rc != 0 or not os.path.exists(png_path):
-            print("browser run 2 failed (exit %d); no screenshot" % rc)
-            print(err[-2000:])
-            return 2
         problems += ["browser log: " + p for p in page_log_problems(err)]
         if args.png:
-            shutil.copyfile(png_path, args.png)
+            try:  # cut the empty window below the page when PIL is there
+                from PIL import Image
+                im = Image.open(png_path)
+                im.crop((0, 0, im.size[0], min(im.size[1], int(info["height"])))).save(args.png)
+            except ImportError:
+                shutil.copyfile(png_path, args.png)
         png = Screenshot(png_path, args.builtin_png)
         if png.width != args.width or png.height < info["height"]:
             problems.append("screenshot is %dx%d, page is %dx%d"
