@@ -18,8 +18,10 @@ namespace fluxtrim::io {
 namespace {
 
 // Bounds that keep memory and time finite on corrupt input; far above real
-// survey files (a few hundred channels, records of a few kB).
-constexpr std::size_t kMaxChannels = 8192;
+// survey files (a 1024-channel spectrum plus a few hundred channels, records
+// of a few kB). The channel bound also caps Table's name look-ups, which are
+// linear per channel.
+constexpr std::size_t kMaxChannels = 2048;
 constexpr std::size_t kMaxRecordWidth = 1u << 22;  // characters
 constexpr std::size_t kMaxDfnLine = 1u << 20;      // characters
 // A .dat line may carry this much trailing blank space past the record.
@@ -456,6 +458,10 @@ struct Gdf2Reader::Impl {
         }
       }
     }
+    if (options.rename.empty()) {
+      // Names in the .dfn are unique already (checked by DfnParser).
+      return;
+    }
     std::vector<std::string> names;
     names.reserve(channels.size());
     for (const ChannelInfo& c : channels) names.push_back(c.name);
@@ -851,6 +857,12 @@ class Gdf2Writer : public RecordingWriter {
     for (std::size_t i = 0; i < schema_.size(); ++i) {
       if (!EqualsIgnoreCase(schema_[i].name, "time")) order_.push_back(i);
     }
+    // A channel of its own named RT would clash with the record-type field;
+    // then the records go without it (readers tell COMM lines apart by
+    // their first four characters either way).
+    for (const ChannelInfo& c : schema_) {
+      if (EqualsIgnoreCase(c.name, "RT")) record_type_ = false;
+    }
     WriteDefinition(dfn);
     WriteComments(options.comment);
     const std::string null_text = kGdf2DefaultNull;
@@ -888,7 +900,7 @@ class Gdf2Writer : public RecordingWriter {
     std::string out;
     out.reserve(rows * (4 + order_.size() * kWriteWidth + 1));
     for (std::size_t r = 0; r < rows; ++r) {
-      out += "DATA";
+      if (record_type_) out += "DATA";
       for (std::size_t i : order_) {
         const double v = chunk.channel(i).values[r];
         if (std::isnan(v)) {
@@ -936,8 +948,10 @@ class Gdf2Writer : public RecordingWriter {
   void WriteDefinition(std::ostream& dfn) {
     std::string d = "DEFN   ST=RECD,RT=COMM;RT:A4;COMMENTS:A" +
                     std::to_string(kCommentWidth) + "\n";
-    d += "DEFN 1 ST=RECD,RT=;RT:A4\n";
-    int n = 2;
+    int n = 1;
+    if (record_type_) {
+      d += "DEFN " + std::to_string(n++) + " ST=RECD,RT=;RT:A4\n";
+    }
     const std::string format =
         "E" + std::to_string(kWriteWidth) + "." + std::to_string(kWriteDecimals);
     for (std::size_t i : order_) {
@@ -994,6 +1008,7 @@ class Gdf2Writer : public RecordingWriter {
   double null_value_ = 0.0;
   std::size_t rows_written_ = 0;
   bool closed_ = false;
+  bool record_type_ = true;  // records start with RT:A4 "DATA"
 };
 
 }  // namespace

@@ -32,6 +32,9 @@
 //     read as NaN. A field of `*` only (Fortran overflow fill) is a null when
 //     NULL= is itself `*`-fill, and otherwise follows ReadOptions::non_finite
 //     like literal `nan`/`inf` text.
+//   - Limits against corrupt definitions: at most 2048 numeric channels
+//     (array elements counted), records of at most 4 Mi characters, repeat
+//     counts up to 8192 and widths up to 65536 (fortran_format.h).
 //   - The time channel is the one named `time` (case-insensitive) after
 //     ReadOptions::rename (`--map time=FIDTIME`). It is always required.
 //
@@ -41,6 +44,8 @@
 //     case partner). Conventional layout: a `COMM` definition, then the data
 //     definition starting with `RT:A4`; `.dat` lines start with `DATA`,
 //     comments (WriteOptions::comment, wrapped at 76 characters) with `COMM`.
+//     A channel named `RT` would clash with the record-type field: then the
+//     data records are written without it.
 //   - Every channel is written as `E25.16`: 17 significant digits, which
 //     round-trips every finite double bit for bit (IEEE 754-2008 clause 5.12.2:
 //     17 decimal digits suffice for binary64), including -0.0, subnormals

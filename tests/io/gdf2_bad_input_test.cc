@@ -113,6 +113,16 @@ TEST(Gdf2BadInput, ArrayElementNamesCollidingWithAFieldAreRejected) {
   EXPECT_TRUE(Has(e, "S_1")) << e.what();
 }
 
+TEST(Gdf2BadInput, TooManyChannelsAreRejected) {
+  const InputError e = ReadExpectingError(
+      "DEFN 1 ST=RECD,RT=;TIME:F10.1;S:1024F5.1\n"
+      "DEFN 2 ST=RECD,RT=;T:1024F5.1\n",
+      "");
+  EXPECT_EQ(e.line(), 2u);
+  EXPECT_TRUE(Has(e, "field T")) << e.what();
+  EXPECT_TRUE(Has(e, "2048")) << e.what();
+}
+
 TEST(Gdf2BadInput, NoDataDefinitionIsRejected) {
   const InputError e = ReadExpectingError(
       "DEFN   ST=RECD,RT=COMM;RT:A4;COMMENTS:A76\n"

@@ -535,6 +535,27 @@ TEST(Gdf2Writer, RejectsChannelNamesThatGdf2CannotCarry) {
       InputError);
 }
 
+TEST(Gdf2Writer, WritesAChannelNamedRtWithoutTheRecordTypeField) {
+  // Found by the fuzzer: a numeric field RT read from one file must not
+  // clash with the RT:A4 record-type field when written.
+  std::ostringstream dfn, dat;
+  Table table({{"RT", "", ""}, {"time", "s", ""}});
+  table.channel(0).values = {7.0, 8.0};
+  table.channel(1).values = {1.0, 2.0};
+  WriteOptions options;
+  options.comment = "a comment line";
+  auto writer = CreateGdf2Writer(dfn, dat, table.Schema(), options);
+  writer->Write(table);
+  writer->Close();
+  EXPECT_EQ(dfn.str().find("RT=;RT:A4"), std::string::npos) << dfn.str();
+  std::istringstream d(dfn.str()), a(dat.str());
+  Gdf2Reader reader(d, "w.dfn", a, "w.dat", {});
+  const Table back = ReadAll(reader);
+  ASSERT_EQ(back.rows(), 2u);
+  EXPECT_EQ(back.Column("RT")[1], 8.0);
+  EXPECT_EQ(reader.skipped_lines(), 1u);
+}
+
 TEST(Gdf2Writer, KeepsSeparatorsOutOfUnitAndLongName) {
   std::ostringstream dfn, dat;
   Table table({{"time", "s", ""}, {"v", "n:T", "field, compensated; final"}});
