@@ -307,12 +307,15 @@ class TrackField {
 
 // --- Initial guess -------------------------------------------------------
 
-// Algebraic ellipsoid fit: E^T A E + b^T E + c = F^2, linear in (A, b, c)
-// (the quadric of the scalar calibration; Merayo et al. 2000 start from the
-// same quadric). Then o = -A^-1 b / 2 and A^-1 = L L^T with L = S P lower
-// triangular (Cholesky): s_i = |row i of L|, P = S^-1 L. Returns false when
-// A is not positive definite (poor coverage): the caller starts from unit
-// gains and zero offsets.
+// Algebraic ellipsoid fit: the quadric E^T A E + b^T E + c = 0 fitted up to
+// scale (smallest eigenvector of the 10x10 scatter matrix of the rows
+// [quadratic terms, E, 1]; the quadric of the scalar calibration, Merayo et
+// al. 2000). Then o = -A^-1 b / 2, (E - o)^T A (E - o) = o^T A o - c = g,
+// so A / g maps the ellipsoid to the unit sphere (in units of the mean
+// reference field), and A^-1 = L L^T with L = S P lower triangular
+// (Cholesky): s_i = |row i of L|, P = S^-1 L. Returns false when there is
+// no ellipsoid (poor coverage): the caller starts from unit gains and zero
+// offsets.
 bool EllipsoidGuess(const CalibrationData& data, double* x) {
   double f_mean = 0;
   for (std::size_t i = 0; i < data.n; ++i) f_mean += data.f_ref[i];
@@ -320,20 +323,20 @@ bool EllipsoidGuess(const CalibrationData& data, double* x) {
   if (!(f_mean > 0)) return false;
   const double k = 1.0 / f_mean;  // work in units of the mean field
   Eigen::Matrix<double, 10, 10> ata = Eigen::Matrix<double, 10, 10>::Zero();
-  Eigen::Matrix<double, 10, 1> atb = Eigen::Matrix<double, 10, 1>::Zero();
   Eigen::Matrix<double, 10, 1> row;
   for (std::size_t i = 0; i < data.n; ++i) {
     const double ex = data.raw[3 * i] * k, ey = data.raw[3 * i + 1] * k,
                  ez = data.raw[3 * i + 2] * k;
     row << ex * ex, 2 * ex * ey, 2 * ex * ez, ey * ey, 2 * ey * ez, ez * ez,
         ex, ey, ez, 1.0;
-    const double f = data.f_ref[i] * k;
     ata.selfadjointView<Eigen::Lower>().rankUpdate(row);
-    atb += row * (f * f);
   }
   ata = ata.selfadjointView<Eigen::Lower>();
-  const Eigen::Matrix<double, 10, 1> sol = ata.colPivHouseholderQr().solve(atb);
+  Eigen::SelfAdjointEigenSolver<Eigen::Matrix<double, 10, 10>> quadric(ata);
+  if (quadric.info() != Eigen::Success) return false;
+  Eigen::Matrix<double, 10, 1> sol = quadric.eigenvectors().col(0);
   if (!sol.allFinite()) return false;
+  if (sol(0) + sol(3) + sol(5) < 0) sol = -sol;  // trace(A) > 0
   Eigen::Matrix3d a;
   a << sol(0), sol(1), sol(2), sol(1), sol(3), sol(4), sol(2), sol(4), sol(5);
   const Eigen::Vector3d bv(sol(6), sol(7), sol(8));
@@ -342,6 +345,9 @@ bool EllipsoidGuess(const CalibrationData& data, double* x) {
     return false;
   }
   const Eigen::Vector3d o = -0.5 * a.inverse() * bv;
+  const double g = o.dot(a * o) - sol(9);
+  if (!(g > 0)) return false;
+  a /= g;
   const Eigen::LLT<Eigen::Matrix3d> llt(a.inverse());
   if (llt.info() != Eigen::Success) return false;
   const Eigen::Matrix3d l = llt.matrixL();
@@ -382,6 +388,33 @@ struct SolveResult {
   Eigen::MatrixXd covariance;    // of x, scaled by chi2 / (m - p)
   bool covariance_from_ceres = false;
   double condition_number = kNaN;  // of the column-scaled J^T J
+};
+
+// r = U (x - x0): the square-root information form of a least-squares
+// problem whose J^T J is U^T U (for ceres::Covariance).
+class SqrtInformationCost : public ceres::CostFunction {
+ public:
+  SqrtInformationCost(const Eigen::MatrixXd& u, const std::vector<double>& x0)
+      : u_(u), x0_(x0) {
+    set_num_residuals(static_cast<int>(u.rows()));
+    mutable_parameter_block_sizes()->push_back(static_cast<int>(u.cols()));
+  }
+  bool Evaluate(double const* const* parameters, double* residuals,
+                double** jacobians) const override {
+    const int p = static_cast<int>(u_.cols());
+    Eigen::VectorXd dx(p);
+    for (int i = 0; i < p; ++i) dx(i) = parameters[0][i] - x0_[i];
+    Eigen::Map<Eigen::VectorXd>(residuals, p) = u_ * dx;
+    if (jacobians != nullptr && jacobians[0] != nullptr) {
+      Eigen::Map<Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic,
+                                Eigen::RowMajor>>(jacobians[0], p, p) = u_;
+    }
+    return true;
+  }
+
+ private:
+  const Eigen::MatrixXd u_;
+  const std::vector<double> x0_;
 };
 
 // Residual RMS of the two classes, unweighted (nT).
@@ -481,19 +514,29 @@ SolveResult Solve(const CalibrationData& data, const ParameterLayout& layout,
 
   // ceres::Covariance only where J^T J is clearly of full rank (it refuses
   // rank-deficient Jacobians; we then use a clamped pseudo-inverse so that
-  // the undetermined parameters show huge standard errors).
+  // the undetermined parameters show huge standard errors). It runs on the
+  // square-root information form r = U (x - x_hat), U^T U = J^T J, which
+  // has the same covariance (J^T J)^-1 as the full problem but p rather
+  // than millions of rows (on the full 1e6 x 9 Jacobian ceres::Covariance
+  // took 5-10 times as long as the whole fit).
   constexpr double kMaxConditionForCeres = 1e12;
   if (out.condition_number < kMaxConditionForCeres) {
-    ceres::Covariance::Options co;
-    co.num_threads = options.num_threads;
-    co.algorithm_type = ceres::DENSE_SVD;
-    ceres::Covariance covariance(co);
-    std::vector<std::pair<const double*, const double*>> blocks = {
-        {x->data(), x->data()}};
-    if (covariance.Compute(blocks, &problem)) {
+    const Eigen::LLT<Eigen::MatrixXd> llt(out.jtj);
+    if (llt.info() == Eigen::Success) {
+      const Eigen::MatrixXd u = llt.matrixU();
+      std::vector<double> xc = *x;
+      ceres::Problem compact;
+      compact.AddResidualBlock(new SqrtInformationCost(u, *x), nullptr,
+                               xc.data());
+      ceres::Covariance::Options co;
+      co.algorithm_type = ceres::DENSE_SVD;
+      ceres::Covariance covariance(co);
+      const std::vector<std::pair<const double*, const double*>> blocks = {
+          {xc.data(), xc.data()}};
       Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>
           c(p, p);
-      if (covariance.GetCovarianceBlock(x->data(), x->data(), c.data())) {
+      if (covariance.Compute(blocks, &compact) &&
+          covariance.GetCovarianceBlock(xc.data(), xc.data(), c.data())) {
         out.covariance = c * variance;
         out.covariance_from_ceres = true;
       }

@@ -17,6 +17,7 @@
 #include <vector>
 
 #include <Eigen/Geometry>
+#include <ceres/ceres.h>
 #include <gtest/gtest.h>
 
 #include "models/fluxgate_sensor.h"
@@ -433,6 +434,64 @@ TEST(Calibrate, StandardErrorsMatchTheActualErrors) {
   const double rms = std::sqrt(sum / count);
   EXPECT_GT(rms, kChi2LowRms);
   EXPECT_LT(rms, kChi2HighRms);
+}
+
+// The fit computes the covariance with ceres::Covariance on the compact
+// square-root information form; it must equal ceres::Covariance on the
+// full problem (every sample a residual), scaled by the residual variance.
+TEST(Calibrate, CompactCovarianceEqualsCeresCovarianceOfTheFullProblem) {
+  SynthOptions o;
+  o.n = 3000;
+  o.seed = 14;
+  const Synth s = Synthesise(o);
+  const CalibrateResult r = Calibrate(s.table, {});
+  ASSERT_TRUE(r.summary.accepted()) << r.summary.refusal();
+  CalibrationData data;
+  data.n = o.n;
+  for (std::size_t i = 0; i < o.n; ++i) {
+    for (const char* c : {"bx", "by", "bz"}) {
+      data.raw.push_back(s.table.Column(c)[i]);
+    }
+    data.f_ref.push_back(s.table.Column("f")[i]);
+  }
+  std::vector<double> x;
+  for (int k = 0; k < 3; ++k) x.push_back(r.model.gains[k]);
+  for (int k = 0; k < 3; ++k) x.push_back(r.model.offsets_nT[k]);
+  for (int k = 0; k < 3; ++k) x.push_back(r.model.nonorthogonality_rad[k]);
+  const ParameterLayout layout;
+  ceres::Problem problem;
+  double chi2 = 0;
+  for (std::size_t begin = 0; begin < o.n; begin += 500) {
+    auto cost = MakeChunkCost(&data, layout, begin, begin + 500, 1.0, 1.0);
+    std::vector<double> res(500);
+    const double* params[1] = {x.data()};
+    ASSERT_TRUE(cost->Evaluate(params, res.data(), nullptr));
+    for (double v : res) chi2 += v * v;
+    problem.AddResidualBlock(cost.release(), nullptr, x.data());
+  }
+  ceres::Covariance::Options co;
+  co.algorithm_type = ceres::DENSE_SVD;
+  ceres::Covariance covariance(co);
+  const std::vector<std::pair<const double*, const double*>> blocks = {
+      {x.data(), x.data()}};
+  ASSERT_TRUE(covariance.Compute(blocks, &problem));
+  double c[81];
+  ASSERT_TRUE(covariance.GetCovarianceBlock(x.data(), x.data(), c));
+  const double variance = chi2 / static_cast<double>(o.n - 9);
+  const proto::Vector3* se[3] = {&r.summary.gains_std_error(),
+                                 &r.summary.offsets_std_error_nt(),
+                                 &r.summary.nonorthogonality_std_error_deg()};
+  const double unit[3] = {1.0, 1.0, 1.0 / kDeg};
+  for (int g = 0; g < 3; ++g) {
+    const double got[3] = {se[g]->x(), se[g]->y(), se[g]->z()};
+    for (int k = 0; k < 3; ++k) {
+      const int i = 3 * g + k;
+      const double want = std::sqrt(c[i * 9 + i] * variance) * unit[g];
+      // Same mathematics, different factorisations: agreement to 1e-6
+      // relative (J^T J has a condition number of ~1e9 before scaling).
+      EXPECT_NEAR(got[k], want, 1e-6 * want) << "parameter " << i;
+    }
+  }
 }
 
 TEST(Calibrate, RowsWithMissingValuesAreSkipped) {
