@@ -410,14 +410,33 @@ ManeuverDetection DetectManeuvers(const io::Table& recording,
   const std::vector<double>& time = recording.Column(recording.time_channel());
   const std::size_t n = time.size();
   ManeuverDetection result;
-  const bool attitude = recording.Has("roll") && recording.Has("pitch") &&
-                        recording.Has("heading");
+  const bool have_attitude = recording.Has("roll") && recording.Has("pitch") &&
+                             recording.Has("heading");
   const bool fluxgate =
       recording.Has("bx") && recording.Has("by") && recording.Has("bz");
-  if (!attitude && !fluxgate) {
+  if (!have_attitude && !fluxgate) {
     throw std::invalid_argument(
         "maneuver detection needs roll, pitch and heading (deg) or the "
         "fluxgate bx, by, bz (nT)");
+  }
+  bool attitude = have_attitude;
+  if (have_attitude && fluxgate) {
+    // Attitude columns that are mostly empty (a logger that lost the INS)
+    // are worth less than a complete fluxgate.
+    std::size_t finite = 0;
+    const auto& roll = recording.Column("roll");
+    const auto& pitch = recording.Column("pitch");
+    const auto& heading = recording.Column("heading");
+    for (std::size_t i = 0; i < n; ++i) {
+      finite += std::isfinite(roll[i]) && std::isfinite(pitch[i]) &&
+                std::isfinite(heading[i]);
+    }
+    if (2 * finite < n) {
+      attitude = false;
+      result.notes.push_back(
+          "roll/pitch/heading hold values in only " + std::to_string(finite) +
+          " of " + std::to_string(n) + " samples; used the fluxgate instead");
+    }
   }
   result.source = attitude ? "attitude" : "fluxgate heading";
 

@@ -295,6 +295,17 @@ TEST(DetectManeuvers, FindsBoxFromFluxgateAloneOnSurveyLineHeadings) {
                      f.truth);
 }
 
+TEST(DetectManeuvers, FallsBackToFluxgateWhenAttitudeColumnsAreMostlyEmpty) {
+  const Flight f = MakeBox({0, 90, 180, 270}, 10.0, 10);
+  io::Table table = FluxgateTable(f, 19000, 45000, 11);
+  for (const char* name : {"roll", "pitch", "heading"}) {
+    table.AddChannel({name, "deg", ""});  // all NaN
+  }
+  const ManeuverDetection found = DetectManeuvers(table);
+  EXPECT_EQ(found.source, "fluxgate heading");
+  EXPECT_EQ(found.maneuvers.size(), f.truth.size());
+}
+
 TEST(DetectManeuvers, RefusesRecordingWithoutAttitudeOrFluxgate) {
   io::Table table({{"time", "s", ""}, {"f", "nT", ""}});
   table.Column("time") = {0, 1, 2};
