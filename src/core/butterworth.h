@@ -46,9 +46,9 @@ class BandPass {
   BandPass(const BandPassOptions& options, double sample_rate_hz);
 
   // Zero-phase filtering, scipy.signal.sosfiltfilt(sos, x) semantics
-  // (padtype='odd', padlen = 3 * (2 * sections + 1 - (number of sections
-  // whose b2 and a2 are both zero)), i.e. 3 * (2*order + 1) for the
-  // band-pass). Input must be finite and at least min_length() samples;
+  // (padtype='odd', padlen = 3 * (2 * sections + 1 - min(number of
+  // sections with b2 = 0, number with a2 = 0)), i.e. 3 * (2*order + 1) for
+  // the band-pass). Input must be finite and at least min_length() samples;
   // shorter input throws std::invalid_argument (callers skip such segments),
   // as does a non-finite sample (use FilterWithGaps). The first sample is
   // subtracted before filtering (same output, far less rounding on a
