@@ -37,7 +37,7 @@ bytes_per_row=$(( $(stat -c %s "$work/probe.csv") / 20000 ))
 rm -f "$work/probe.csv"
 
 echo "# $(date -u +%Y-%m-%dT%H:%MZ) $(nproc) cores, load $(cut -d' ' -f1-3 /proc/loadavg)"
-printf '%-8s %10s %12s %9s %10s %12s %10s\n' size_MB rows input_MB wall_s MB/s Msamples/s maxRSS_MB
+printf '%-8s %10s %10s %8s %8s %9s %11s %10s\n' size_MB rows input_MB wall_s cpu_s MB/s MB/cpu_s maxRSS_MB
 for mb in "${sizes[@]}"; do
   rows=$(( mb * 1000000 / bytes_per_row ))
   "$gen" --write_csv="$work/in.csv" --rows="$rows"
@@ -50,14 +50,18 @@ for mb in "${sizes[@]}"; do
   wall=$(awk -F': ' '/Elapsed \(wall clock\)/ {
            n = split($2, p, ":"); s = 0;
            for (i = 1; i <= n; ++i) s = s * 60 + p[i]; print s }' "$work/time.txt")
+  # user + system CPU seconds: the single-core cost, whatever the load.
+  cpu=$(awk -F': ' '/User time|System time/ {s += $2} END {print s}' "$work/time.txt")
   rss_kb=$(awk -F': ' '/Maximum resident set size/ {print $2}' "$work/time.txt")
+  # One output line per input line (header lines included).
+  in_lines=$(wc -l < "$work/in.csv")
   out_lines=$(wc -l < "$work/out.csv")
-  if [[ "$out_lines" -ne $(( rows + 1 )) ]]; then
-    echo "output has $out_lines lines, expected $(( rows + 1 ))" >&2
+  if [[ "$out_lines" -ne "$in_lines" ]]; then
+    echo "output has $out_lines lines, input $in_lines" >&2
     exit 1
   fi
-  awk -v mb="$mb" -v rows="$rows" -v b="$in_bytes" -v w="$wall" -v r="$rss_kb" 'BEGIN {
-    printf "%-8s %10d %12.1f %9.2f %10.1f %12.2f %10.1f\n",
-           mb, rows, b / 1e6, w, b / 1e6 / w, rows / 1e6 / w, r / 1024 }'
+  awk -v mb="$mb" -v rows="$rows" -v b="$in_bytes" -v w="$wall" -v c="$cpu" -v r="$rss_kb" 'BEGIN {
+    printf "%-8s %10d %10.1f %8.2f %8.2f %9.1f %11.1f %10.1f\n",
+           mb, rows, b / 1e6, w, c, b / 1e6 / w, b / 1e6 / c, r / 1024 }'
   rm -f "$work/in.csv" "$work/out.csv"
 done
