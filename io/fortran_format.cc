@@ -235,21 +235,26 @@ NumberStatus ParseFortranNumber(std::string_view field, double* value) {
   return NumberStatus::kOk;
 }
 
-bool FormatE17(double v, int width, std::string* out) {
-  // std::to_chars with a precision formats "as if by printf" in the C
-  // locale (C++17 [utility.to.chars]) and is much faster than snprintf for
-  // 17 digits; only the exponent letter differs from "%.16E".
+bool FormatRoundTripE(double v, int width, std::string* out) {
+  // std::to_chars without a precision gives the shortest digits that read
+  // back to the same double (C++17 [utility.to.chars]/2), in printf's
+  // exponent layout.
   char buf[64];
-  const std::to_chars_result r = std::to_chars(
-      buf, buf + sizeof(buf), v, std::chars_format::scientific, 16);
+  const std::to_chars_result r =
+      std::to_chars(buf, buf + sizeof(buf) - 2, v, std::chars_format::scientific);
   if (r.ec != std::errc()) return false;
-  const int n = static_cast<int>(r.ptr - buf);
-  if (n > width) return false;
-  for (char* c = buf; c != r.ptr; ++c) {
-    if (*c == 'e') *c = 'E';
+  std::string text(buf, r.ptr);
+  const std::size_t e = text.find('e');
+  if (e == std::string::npos) return false;
+  text[e] = 'E';
+  // A decimal point always: Fortran reads digits without one under the
+  // implied-decimal rule of Ew.d (ISO/IEC 1539-1 10.7.2.3.2).
+  if (text.find('.') == std::string::npos) {
+    text.insert(e, ".0");
   }
-  out->append(static_cast<std::size_t>(width - n), ' ');
-  out->append(buf, static_cast<std::size_t>(n));
+  if (static_cast<int>(text.size()) > width) return false;
+  out->append(static_cast<std::size_t>(width) - text.size(), ' ');
+  out->append(text);
   return true;
 }
 

@@ -49,10 +49,11 @@ enum class NumberStatus {
 // as a Fortran READ gives.
 NumberStatus ParseFortranNumber(std::string_view field, double* value);
 
-// Writes v in E format with 17 significant digits (printf "%.16E"),
-// right-aligned in width characters. 17 digits round-trip every binary64
-// value (IEEE 754-2008, 5.12.2). Needs width >= 24 for every finite double.
-// Returns false when the text does not fit.
-bool FormatE17(double v, int width, std::string* out);
+// Writes a finite v in E format with the fewest significant digits that
+// read back to the same double (at most 17), always with a decimal point and
+// an exponent of at least two digits ("5.712345E+04", "-0.0E+00",
+// "5.0E-324"), right-aligned in width characters. Needs width >= 24 for
+// every finite double. Returns false when the text does not fit.
+bool FormatRoundTripE(double v, int width, std::string* out);
 
 }  // namespace fluxtrim::io

@@ -28,7 +28,7 @@ constexpr std::size_t kMaxDfnLine = 1u << 20;      // characters
 constexpr std::size_t kDatLineSlack = 4096;
 
 constexpr int kWriteWidth = 25;     // E25.16: 24 characters + one blank
-constexpr int kWriteDecimals = 16;  // 17 significant digits
+constexpr int kWriteDecimals = 16;  // room for 17 significant digits
 constexpr int kCommentWidth = 76;   // COMMENTS:A76, the conventional layout
 
 bool IsBlank(char c) { return c == ' ' || c == '\t'; }
@@ -919,7 +919,7 @@ class Gdf2Writer : public RecordingWriter {
                 kGdf2DefaultNull +
                 " is the ASEG-GDF2 null value and would read back as a gap");
           }
-          FormatE17(v, kWriteWidth, &out);
+          FormatRoundTripE(v, kWriteWidth, &out);
         }
       }
       out += '\n';

@@ -46,11 +46,12 @@
 //     comments (WriteOptions::comment, wrapped at 76 characters) with `COMM`.
 //     A channel named `RT` would clash with the record-type field: then the
 //     data records are written without it.
-//   - Every channel is written as `E25.16`: 17 significant digits, which
-//     round-trips every finite double bit for bit (IEEE 754-2008 clause 5.12.2:
-//     17 decimal digits suffice for binary64), including -0.0, subnormals
-//     (3-digit exponents fit the width) and 1e300. NaN is written as the null
-//     value kGdf2DefaultNull; infinities as `Inf`/`-Inf` (read back under
+//   - Every channel is defined as `E25.16` and written with the fewest
+//     significant digits (at most 17) that read back to the same double
+//     (std::to_chars shortest form, always with a decimal point): every
+//     finite double round-trips bit for bit, including -0.0, subnormals
+//     (3-digit exponents fit the width) and 1e300. NaN is written as the
+//     null value kGdf2DefaultNull; infinities as `Inf`/`-Inf` (read back under
 //     ReadOptions::non_finite). A finite value equal to the null value
 //     (-1e100) cannot be represented: Write throws std::runtime_error.
 //   - The time channel (named `time`, case-insensitive) is written first; the

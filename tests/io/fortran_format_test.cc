@@ -143,20 +143,31 @@ TEST(FortranNumber, ClassifiesBlanksFillNonFiniteAndGarbage) {
   }
 }
 
-TEST(FormatE17, WritesSeventeenSignificantDigitsRightAligned) {
-  // printf "%.16E" (C11 7.21.6.1): one digit, point, 16 digits, exponent of
-  // at least two digits.
+TEST(FormatRoundTripE, WritesTheShortestDigitsWithAPointRightAligned) {
+  // Shortest round-trip digits as Python's repr gives them (David Gay's
+  // algorithm; repr(-0.0) '-0.0', repr(5e-324) '5e-324', repr(0.1) '0.1',
+  // repr(57123.456) '57123.456', repr(-1.7976931348623157e308)), in E
+  // layout.
+  const struct {
+    double v;
+    const char* text;
+  } cases[] = {
+      {-0.0, "-0.0E+00"},
+      {4.9406564584124654e-324, "5.0E-324"},
+      {0.1, "1.0E-01"},
+      {57123.456, "5.7123456E+04"},
+      {1e300, "1.0E+300"},
+      {-1.7976931348623157e308, "-1.7976931348623157E+308"},
+      {1.0 / 3.0, "3.333333333333333E-01"},
+  };
+  for (const auto& c : cases) {
+    std::string s;
+    ASSERT_TRUE(FormatRoundTripE(c.v, 25, &s)) << c.text;
+    const std::string text = c.text;
+    EXPECT_EQ(s, std::string(25 - text.size(), ' ') + text) << c.v;
+  }
   std::string s;
-  ASSERT_TRUE(FormatE17(-0.0, 25, &s));
-  EXPECT_EQ(s, "  -0.0000000000000000E+00");
-  s.clear();
-  ASSERT_TRUE(FormatE17(4.9406564584124654e-324, 25, &s));
-  EXPECT_EQ(s, "  4.9406564584124654E-324");
-  s.clear();
-  ASSERT_TRUE(FormatE17(-1.7976931348623157e308, 25, &s));
-  EXPECT_EQ(s, " -1.7976931348623157E+308");
-  s.clear();
-  EXPECT_FALSE(FormatE17(-1.7976931348623157e308, 23, &s));
+  EXPECT_FALSE(FormatRoundTripE(-1.7976931348623157e308, 23, &s));
 }
 
 }  // namespace
