@@ -16,7 +16,7 @@
 
 namespace {
 
-const std::string kFlights = std::string(FLUXTRIM_SOURCE_DIR) + "/flights/";
+std::string Flights() { return std::string(FLUXTRIM_SOURCE_DIR) + "/flights/"; }
 
 struct ProcessResult {
   int exit_code = -1;
@@ -68,7 +68,7 @@ struct DemoRun {
 };
 
 std::vector<DemoRun> DemoRuns() {
-  std::istringstream script(Slurp(kFlights + "regenerate.sh"));
+  std::istringstream script(Slurp(Flights() + "regenerate.sh"));
   std::vector<DemoRun> runs;
   std::string line;
   while (std::getline(script, line)) {
@@ -120,7 +120,7 @@ TEST(SimulateCliTest, EveryDemoFlightRegeneratesBitForBit) {
     const std::string out = TempPath(Stem(run.output) + ext);
     const std::string truth = TempPath(Stem(run.truth) + ".csv");
     const ProcessResult r =
-        RunFluxtrim("simulate '" + kFlights + run.scenario + "' -o '" + out +
+        RunFluxtrim("simulate '" + Flights() + run.scenario + "' -o '" + out +
                     "' --truth '" + truth + "' --quiet");
     ASSERT_EQ(r.exit_code, 0) << r.err;
     EXPECT_TRUE(r.out.empty()) << "--quiet printed: " << r.out;
@@ -128,16 +128,16 @@ TEST(SimulateCliTest, EveryDemoFlightRegeneratesBitForBit) {
       has_gdf2 = true;
       const std::string stem = out.substr(0, out.size() - 4);
       const std::string committed =
-          kFlights + run.output.substr(0, run.output.size() - 4);
+          Flights() + run.output.substr(0, run.output.size() - 4);
       ExpectSameBytes(committed + ".dfn", stem + ".dfn");
       ExpectSameBytes(committed + ".dat", stem + ".dat");
       std::remove((stem + ".dfn").c_str());
       std::remove((stem + ".dat").c_str());
     } else {
-      ExpectSameBytes(kFlights + run.output, out);
+      ExpectSameBytes(Flights() + run.output, out);
       std::remove(out.c_str());
     }
-    ExpectSameBytes(kFlights + run.truth, truth);
+    ExpectSameBytes(Flights() + run.truth, truth);
     std::remove(truth.c_str());
   }
   EXPECT_TRUE(has_gdf2) << "at least one demo recording must be ASEG-GDF2";
@@ -153,7 +153,7 @@ TEST(SimulateCliTest, DemoFlightsStayWithinTenMegabytes) {
     }
     for (const std::string& f : files) {
       struct stat st;
-      ASSERT_EQ(stat((kFlights + f).c_str(), &st), 0) << f;
+      ASSERT_EQ(stat((Flights() + f).c_str(), &st), 0) << f;
       total += static_cast<std::size_t>(st.st_size);
     }
   }
@@ -162,7 +162,7 @@ TEST(SimulateCliTest, DemoFlightsStayWithinTenMegabytes) {
 
 TEST(SimulateCliTest, PrintsSummaryAndFlightCaution) {
   const std::string out = TempPath("box.csv");
-  const ProcessResult r = RunFluxtrim("simulate '" + kFlights +
+  const ProcessResult r = RunFluxtrim("simulate '" + Flights() +
                                       "demo_box.scenario' -o '" + out + "'");
   ASSERT_EQ(r.exit_code, 0) << r.err;
   EXPECT_NE(r.out.find("samples: 5961 at 10 Hz"), std::string::npos) << r.out;
@@ -175,7 +175,7 @@ TEST(SimulateCliTest, PrintsSummaryAndFlightCaution) {
 TEST(SimulateCliTest, GroundVehicleAlsoPrintsOrdnanceCaution) {
   const std::string out = TempPath("loop.ftrec");
   const ProcessResult r =
-      RunFluxtrim("simulate '" + kFlights + "demo_vehicle_loop.scenario' -o '" +
+      RunFluxtrim("simulate '" + Flights() + "demo_vehicle_loop.scenario' -o '" +
                   out + "'");
   ASSERT_EQ(r.exit_code, 0) << r.err;
   EXPECT_NE(r.out.find("does not declare ground safe"), std::string::npos)
@@ -228,14 +228,14 @@ TEST(SimulateCliTest, MissingScenarioFileExitsOne) {
 }
 
 TEST(SimulateCliTest, UsageErrorsExitTwo) {
-  EXPECT_EQ(RunFluxtrim("simulate '" + kFlights + "demo_box.scenario'")
+  EXPECT_EQ(RunFluxtrim("simulate '" + Flights() + "demo_box.scenario'")
                 .exit_code,
             2);
-  const ProcessResult r = RunFluxtrim("simulate '" + kFlights +
+  const ProcessResult r = RunFluxtrim("simulate '" + Flights() +
                                       "demo_box.scenario' -o out.xlsx");
   EXPECT_EQ(r.exit_code, 2);
   EXPECT_NE(r.err.find("xlsx"), std::string::npos) << r.err;
-  EXPECT_EQ(RunFluxtrim("simulate '" + kFlights +
+  EXPECT_EQ(RunFluxtrim("simulate '" + Flights() +
                         "demo_box.scenario' -o '" + TempPath("y.csv") +
                         "' --seed notanumber")
                 .exit_code,
