@@ -788,12 +788,12 @@ SimulatedFlight BuildTables(const proto::Scenario& s, const Plan& plan,
          r.roll_deg, plan.attitude_decimals);
     Fill(Add(&rec, "pitch", "deg", "pitch (nose up positive)"), r.pitch_deg,
          plan.attitude_decimals);
-    std::vector<double> heading(n);
-    for (std::size_t i = 0; i < n; ++i) {
-      heading[i] = Round(r.heading_deg[i], plan.attitude_decimals);
-      if (heading[i] >= 360.0) heading[i] -= 360.0;
+    // Rounding may carry 359.9996 up to 360: wrap it back to 0.
+    io::Channel& heading = Add(&rec, "heading", "deg", "true heading");
+    Fill(heading, r.heading_deg, plan.attitude_decimals);
+    for (double& h : heading.values) {
+      if (h >= 360.0) h -= 360.0;
     }
-    Fill(Add(&rec, "heading", "deg", "true heading"), heading, 12);
   }
   Fill(Add(&rec, "lat", "deg", "WGS84 latitude"), r.lat_deg,
        plan.latlon_decimals);
