@@ -1,8 +1,10 @@
 // fluxtrim simulate SCENARIO -o REC: a synthetic flight from a scenario
 // file (io/proto/scenario.proto), written in the format of the extension.
 #include <cstdint>
+#include <fstream>
 #include <iostream>
 #include <memory>
+#include <stdexcept>
 #include <string>
 
 #include "io/error.h"
@@ -18,6 +20,7 @@ struct SimulateArgs {
   std::string scenario;
   std::string output;
   std::string truth;
+  std::string segments;
   std::uint64_t seed = 0;
   bool quiet = false;
 };
@@ -53,11 +56,21 @@ int RunSimulate(const SimulateArgs& args, bool seed_given) {
     truth_write.comment = "truth of " + write.comment;
     io::WriteRecording(args.truth, flight.truth, truth_write);
   }
+  if (!args.segments.empty()) {
+    std::ofstream out(args.segments, std::ios::binary);
+    out << core::FormatSegmentsCsv(flight);
+    out.close();
+    if (!out) {
+      throw std::runtime_error(args.segments +
+                               ": cannot write the segments file");
+    }
+  }
   if (!args.quiet) {
     std::ostream& out = args.output == "-" ? std::cerr : std::cout;
     out << core::FormatFlightSummary(flight, core::SummarizeFlight(flight));
     out << "wrote " << args.output;
-    if (!args.truth.empty()) out << " and " << args.truth;
+    if (!args.truth.empty()) out << ", " << args.truth;
+    if (!args.segments.empty()) out << ", " << args.segments;
     out << "\n" << core::kFlightCaution << "\n";
     if (flight.platform_kind == "ground_vehicle") {
       out << core::kOrdnanceCaution << "\n";
@@ -85,6 +98,9 @@ void AddSimulateCommand(CLI::App& app, int* exit_code) {
   sub->add_option("--truth", args->truth,
                   "Also write the truth table (interference, noise, Earth "
                   "field, maneuvers) to PATH");
+  sub->add_option("--segments", args->segments,
+                  "Also write the pitch/roll/yaw maneuvers as CSV "
+                  "(start_s,end_s,heading_deg,kind) for fit --segments");
   CLI::Option* seed = sub->add_option(
       "--seed", args->seed, "Replace the scenario's seed (noise, turbulence, "
                             "currents, faults)");

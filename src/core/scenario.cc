@@ -5,6 +5,7 @@
 
 #include <algorithm>
 #include <cctype>
+#include <charconv>
 #include <cmath>
 #include <cstdio>
 #include <fstream>
@@ -910,6 +911,25 @@ SimulatedFlight SimulateScenarioFile(const std::string& path,
   buffer << in.rdbuf();
   if (in.bad()) throw io::InputError(path, 0, 0, "cannot read the scenario file");
   return SimulateScenarioText(buffer.str(), path, options);
+}
+
+std::string FormatSegmentsCsv(const SimulatedFlight& flight) {
+  auto number = [](double v) {
+    char buffer[32];
+    const auto r = std::to_chars(buffer, buffer + sizeof buffer, v);
+    return std::string(buffer, r.ptr);
+  };
+  std::string out = "start_s,end_s,heading_deg,kind\n";
+  for (const SegmentTruth& s : flight.segments) {
+    const char* kind = s.kind == 1   ? "pitch"
+                       : s.kind == 2 ? "roll"
+                       : s.kind == 3 ? "yaw"
+                                     : nullptr;
+    if (!kind) continue;
+    out += number(s.start_s) + "," + number(s.end_s) + "," +
+           number(s.heading_deg) + "," + kind + "\n";
+  }
+  return out;
 }
 
 FlightSummary SummarizeFlight(const SimulatedFlight& flight) {

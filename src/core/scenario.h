@@ -94,6 +94,12 @@ SimulatedFlight SimulateScenarioFile(const std::string& path);
 SimulatedFlight SimulateScenarioFile(const std::string& path,
                                      const SimulateOptions& options);
 
+// The pitch, roll and yaw maneuvers as a CSV for `fit --segments`: header
+// "start_s,end_s,heading_deg,kind", one line per maneuver, kind pitch|roll|
+// yaw, numbers in their shortest exact form. Rotation segments (drone
+// calibration) are not compensation maneuvers and are left out.
+std::string FormatSegmentsCsv(const SimulatedFlight& flight);
+
 // What `simulate` prints after a run.
 struct FlightSummary {
   double duration_s = 0.0;

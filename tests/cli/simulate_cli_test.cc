@@ -172,6 +172,32 @@ TEST(SimulateCliTest, PrintsSummaryAndFlightCaution) {
   std::remove(out.c_str());
 }
 
+TEST(SimulateCliTest, SegmentsFileFeedsFit) {
+  // The maneuver list the simulator flew, handed to `fit --segments`
+  // instead of detection: the fit must accept it and use all 12.
+  const std::string rec = TempPath("box.csv");
+  const std::string segments = TempPath("segments.csv");
+  const std::string model = TempPath("box.model");
+  const ProcessResult sim =
+      RunFluxtrim("simulate '" + Flights() + "demo_box.scenario' -o '" + rec +
+                  "' --segments '" + segments + "' --quiet");
+  ASSERT_EQ(sim.exit_code, 0) << sim.err;
+  std::istringstream lines(Slurp(segments));
+  std::string line;
+  std::getline(lines, line);
+  EXPECT_EQ(line, "start_s,end_s,heading_deg,kind");
+  int count = 0;
+  while (std::getline(lines, line)) ++count;
+  EXPECT_EQ(count, 12);
+  const ProcessResult fit = RunFluxtrim("fit '" + rec + "' -o '" + model +
+                                        "' --segments '" + segments + "'");
+  EXPECT_EQ(fit.exit_code, 0) << fit.out << fit.err;
+  EXPECT_NE(fit.out.find("FOM"), std::string::npos) << fit.out;
+  std::remove(rec.c_str());
+  std::remove(segments.c_str());
+  std::remove(model.c_str());
+}
+
 TEST(SimulateCliTest, GroundVehicleAlsoPrintsOrdnanceCaution) {
   const std::string out = TempPath("loop.ftrec");
   const ProcessResult r =
