@@ -34,6 +34,9 @@ constexpr const char* kTrack = kReportColourTrack;
 // Plot sizes (px) for a 1000 px content column: two columns of 492.
 constexpr double kHalfWidth = 492.0;
 constexpr double kFullWidth = 1000.0;
+// Full-width plots shrink to about 70 % on A4 paper: a larger font keeps
+// their text near 7 pt there.
+constexpr double kFullWidthFontPx = 12.5;
 
 const char* GroupColour(const std::string& group) {
   if (group == "permanent") return kReportColourPermanent;
@@ -270,6 +273,9 @@ footer { margin-top: 28px; padding-top: 8px; border-top: 1px solid var(--rule);
   .page { width: auto; margin: 0; padding: 0; box-shadow: none; }
   header.masthead { margin: 0 0 12px; }
   h2 { break-after: avoid; }
+  /* One plot per row on paper keeps plot text near 8 pt. */
+  .grid2, .fig-cols { grid-template-columns: minmax(0, 1fr); }
+  .grid2 > figure, .fig-cols > figure { justify-self: center; }
   figure, table, .kpis, .caution { break-inside: avoid; }
   * { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
 }
@@ -386,6 +392,19 @@ void WritePanels(Writer& w, const ReportData& d, const TimeAxis& ta,
          << kAfter << "\"></span>blue) compensation."
          << (maneuvers ? " Shaded: pitch, roll and yaw maneuvers." : "")
          << "</p>\n<div class=\"grid2\">\n";
+  // One y range for every panel so headings (or lines) compare at a glance.
+  double lo = std::numeric_limits<double>::infinity(), hi = -lo;
+  for (const auto& p : d.panels) {
+    for (const auto* v : {&p.before, &p.after}) {
+      for (double x : *v) {
+        if (std::isfinite(x)) {
+          lo = std::min(lo, x);
+          hi = std::max(hi, x);
+        }
+      }
+    }
+  }
+  const AxisTicks shared = LinearTicks(lo <= hi ? lo : kNaN, lo <= hi ? hi : kNaN, 5, true);
   for (std::size_t i = 0; i < d.panels.size(); ++i) {
     const ReportPanel& p = d.panels[i];
     PlotOptions o;
@@ -396,6 +415,9 @@ void WritePanels(Writer& w, const ReportData& d, const TimeAxis& ta,
     o.width_px = kHalfWidth;
     o.height_px = 240.0;
     o.max_points_per_line = opt.max_points_per_line;
+    o.y_min = shared.lo;
+    o.y_max = shared.hi;
+    o.y_tick_step = shared.step;
     SvgPlot plot(o);
     for (const auto& s : p.spans) {
       plot.AddSpan(ta.Map(s.start_s), ta.Map(s.end_s), s.label, SpanTint(s.label));
@@ -423,6 +445,7 @@ void WriteManeuvers(Writer& w, const ReportData& d) {
     o.title = "Peak-to-peak of the band-passed field per maneuver";
     o.y_label = "peak-to-peak (nT)";
     o.width_px = kFullWidth;
+    o.font_size_px = kFullWidthFontPx;
     o.height_px = 300.0;
     std::vector<std::string> kinds;
     std::vector<double> before, after;
@@ -591,6 +614,7 @@ void WriteCoefficients(Writer& w, const ReportData& d) {
     o.title = "Excitation: singular values of the band-passed terms per group";
     o.y_label = "singular value (RMS)";
     o.width_px = kFullWidth;
+    o.font_size_px = kFullWidthFontPx;
     o.height_px = 260.0;
     o.y_scale = AxisScale::kLog;
     SvgPlot plot(o);
@@ -659,6 +683,7 @@ void WriteSpectrum(Writer& w, const ReportData& d, const ReportOptions& opt) {
   o.x_label = "frequency (Hz)";
   o.y_label = "amplitude density (nT/\xE2\x88\x9AHz)";
   o.width_px = kFullWidth;
+  o.font_size_px = kFullWidthFontPx;
   o.height_px = 320.0;
   o.x_scale = AxisScale::kLog;
   o.y_scale = AxisScale::kLog;
@@ -708,7 +733,7 @@ void WriteAttitude(Writer& w, const ReportData& d, const TimeAxis& ta,
   const bool has_track = !d.lat_deg.empty() && !d.lon_deg.empty();
   if (!has_attitude && !has_track) return;
   w.Section("attitude", "Attitude and track");
-  w.html << "<div class=\"cols\">\n";
+  w.html << "<div class=\"cols fig-cols\">\n";
   if (has_track) {
     double lat_sum = 0.0;
     std::size_t n = 0;
@@ -752,7 +777,25 @@ void WriteAttitude(Writer& w, const ReportData& d, const TimeAxis& ta,
     } else {
       plot.AddNote("no valid positions");
     }
-    w.Figure(plot.Render(), "Equal-aspect plot (longitude scaled by cos latitude).");
+    // Extent on the ground, spherical Earth of mean radius 6371 km: enough
+    // for a caption.
+    double lat_lo = 90, lat_hi = -90, lon_lo = 360, lon_hi = -360;
+    for (std::size_t i = 0; i < std::min(d.lat_deg.size(), d.lon_deg.size()); ++i) {
+      if (std::isfinite(d.lat_deg[i]) && std::isfinite(d.lon_deg[i])) {
+        lat_lo = std::min(lat_lo, d.lat_deg[i]);
+        lat_hi = std::max(lat_hi, d.lat_deg[i]);
+        lon_lo = std::min(lon_lo, d.lon_deg[i]);
+        lon_hi = std::max(lon_hi, d.lon_deg[i]);
+      }
+    }
+    std::string caption = "Equal-aspect plot (longitude scaled by cos latitude).";
+    if (lat_lo <= lat_hi) {
+      const double km_per_deg = 6371.0 * 3.14159265358979323846 / 180.0;
+      caption += " Extent " + Sig((lon_hi - lon_lo) * km_per_deg * o.x_unit_in_y_units, 2) +
+                 " km east-west by " + Sig((lat_hi - lat_lo) * km_per_deg, 2) +
+                 " km north-south.";
+    }
+    w.Figure(plot.Render(), Esc(caption));
   }
   if (has_attitude) {
     w.html << "<div class=\"stack\">\n";
