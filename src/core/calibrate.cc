@@ -723,12 +723,15 @@ std::unique_ptr<ceres::CostFunction> MakeChunkCost(
 
 std::string SensorModelConvention() {
   return "E = S P R B + o (form of Merayo et al. 2000, Meas. Sci. Technol. "
-         "11:120, as recalled from memory): B true field in body axes (x "
-         "forward, y starboard, z down), R misalignment Rx(a_x) Ry(a_y) "
-         "Rz(a_z), P non-orthogonality, lower triangular with rows [1, 0, 0], "
-         "[sin u1, cos u1, 0], [sin u2, sin u3 cos u2, cos u2 cos u3], S = "
-         "diag(gains), o offsets (nT), E raw reading (nT). Calibrated field: "
-         "B = R^T P^-1 S^-1 (E - o).";
+         "11:120, as recalled from memory)\n"
+         "  B  true field in body axes (x forward, y starboard, z down), nT\n"
+         "  R  misalignment Rx(a_x) Ry(a_y) Rz(a_z)\n"
+         "  P  non-orthogonality u1, u2, u3: lower triangular with rows\n"
+         "       [1, 0, 0]\n"
+         "       [sin u1, cos u1, 0]\n"
+         "       [sin u2, sin u3 cos u2, cos u2 cos u3]\n"
+         "  S  diag(gains), o offsets (nT), E raw reading (nT)\n"
+         "  calibrated field B = R^T P^-1 S^-1 (E - o)\n";
 }
 
 proto::DirectionCoverage ComputeDirectionCoverage(std::size_t n,
@@ -933,7 +936,10 @@ CalibrateResult Calibrate(const io::Table& table,
   layout.temperature = !options.temperature_channel.empty();
   layout.aux_count = static_cast<int>(options.aux_channels.size());
   s.set_mode(vector ? "vector" : "scalar");
-  s.set_reference(has_f ? "scalar sensor" : "WMM2025 magnitude");
+  s.set_reference(has_f ? (vector ? "scalar sensor magnitude, WMM2025 "
+                                    "direction"
+                                  : "scalar sensor")
+                        : (vector ? "WMM2025 vector" : "WMM2025 magnitude"));
 
   // Gather the usable rows.
   const std::size_t rows = table.rows();
@@ -1426,16 +1432,18 @@ std::string Row3(const char* label, const proto::Vector3& v,
                  const char* unit) {
   std::string s = "  ";
   s += label;
-  s.resize(24, ' ');
+  s.resize(22, ' ');
   const double vals[3] = {v.x(), v.y(), v.z()};
   const double errs[3] = {se.x(), se.y(), se.z()};
   for (int k = 0; k < 3; ++k) {
     char buf[96];
     char fmt[48];
-    std::snprintf(fmt, sizeof fmt, "%s %s+-%s", kAxis[k], format, format);
-    std::snprintf(buf, sizeof buf, fmt, vals[k], errs[k]);
+    // Standard errors with two significant digits: the value's fixed
+    // format would print most of them as zero.
+    std::snprintf(fmt, sizeof fmt, "%s %s +-%%.2g", kAxis[k], format);
+    std::snprintf(buf, sizeof buf, fmt, vals[k] + 0.0, errs[k]);
     std::string cell = buf;
-    cell.resize(26, ' ');
+    cell.resize(std::max<std::size_t>(cell.size() + 1, 26), ' ');
     s += cell;
   }
   s += unit;
@@ -1452,7 +1460,7 @@ std::string FormatCalibrationSummary(const proto::CalibrationSummary& s) {
   if (!s.file().empty()) out << "  recording: " << s.file() << "\n";
   out << "  samples: " << s.samples_used() << " used of " << s.samples()
       << "\n";
-  out << "model: " << s.model() << "\n";
+  out << "model: " << s.model();
   if (s.samples_used() == 0 || (!s.accepted() && !s.has_gains())) {
     out << "REFUSED: " << s.refusal() << "\n";
     return out.str();
@@ -1511,7 +1519,9 @@ std::string FormatCalibrationSummary(const proto::CalibrationSummary& s) {
         << " deg\n";
   }
   out << "fit: " << s.iterations() << " iterations, condition number "
-      << Fmt("%.3g", s.condition_number()) << ", "
+      << (s.condition_number() > 0 ? Fmt("%.3g", s.condition_number())
+                                   : std::string("infinite (singular)"))
+      << ", "
       << Fmt("%.2f", s.solve_time_s()) << " s\n";
   out << "separability:\n";
   for (const std::string& n : s.separability()) out << "  - " << n << "\n";
