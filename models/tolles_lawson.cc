@@ -123,9 +123,22 @@ void FillTermRow(const TermOptions& o, const double c[3], const double dc[3],
 }
 
 double DerivativeWeight(int half_width, int offset, double dt_s) {
-  const double k = half_width;
-  const double sum_j2 = k * (k + 1) * (2 * k + 1) / 3.0;
-  return offset / (dt_s * sum_j2);
+  // Savitzky & Golay (1964): fit a + b j + c j^2 + d j^3 to the window; on a
+  // symmetric window the slope b comes from the odd part alone:
+  //   [S2 S4; S4 S6] [b d]' = [sum j x_j, sum j^3 x_j]',  Sn = sum j^n,
+  // so w_j = (S6 j - S4 j^3) / (S2 S6 - S4^2) / dt. For k = 1 the cubic is
+  // not determined by three samples and the quadratic (central difference)
+  // is used: w_j = j / (S2 dt).
+  const double k = half_width, j = offset;
+  const double s2 = k * (k + 1) * (2 * k + 1) / 3.0;
+  if (half_width < 2) return j / (dt_s * s2);
+  double s4 = 0, s6 = 0;
+  for (int i = 1; i <= half_width; ++i) {
+    const double i2 = static_cast<double>(i) * i;
+    s4 += 2 * i2 * i2;
+    s6 += 2 * i2 * i2 * i2;
+  }
+  return (s6 * j - s4 * j * j * j) / ((s2 * s6 - s4 * s4) * dt_s);
 }
 
 TermEngine::TermEngine(const Options& options) : options_(options) {
