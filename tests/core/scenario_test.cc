@@ -6,6 +6,7 @@
 #include <google/protobuf/text_format.h>
 #include <gtest/gtest.h>
 
+#include <algorithm>
 #include <cmath>
 #include <fstream>
 #include <sstream>
@@ -396,6 +397,26 @@ TEST(ScenarioTest, DemoDroneFluxgateErrorsStayWithinTheStatedBounds) {
   const proto::Vec3& g = cal.platform().currents(0).coupling_nt_per_a();
   EXPECT_NEAR(std::sqrt(g.x() * g.x() + g.y() * g.y() + g.z() * g.z()), 0.4,
               0.05);
+}
+
+TEST(ScenarioTest, DemoInterferenceIsOfRealisticSize) {
+  // Uncompensated fixed-wing FOM of tens of nT (common practice).
+  const SimulatedFlight box =
+      SimulateScenarioFile(Flights() + "demo_box.scenario");
+  const FlightSummary b = SummarizeFlight(box);
+  EXPECT_EQ(b.maneuvers, 12u);
+  EXPECT_GT(b.maneuver_peak_to_peak_sum_nT, 10.0);
+  EXPECT_LT(b.maneuver_peak_to_peak_sum_nT, 100.0);
+  // Drone interference on the total field: published range about 20 to
+  // 570 nT (Tuck et al. 2021, Geosci. Instrum. Method. Data Syst. 10:101).
+  const SimulatedFlight drone =
+      SimulateScenarioFile(Flights() + "demo_drone_cal.scenario");
+  const FlightSummary d = SummarizeFlight(drone);
+  const double spread = d.interference_max_nT - d.interference_min_nT;
+  EXPECT_GE(spread, 20.0);
+  EXPECT_LE(std::max(std::fabs(d.interference_min_nT),
+                     std::fabs(d.interference_max_nT)),
+            570.0);
 }
 
 }  // namespace
