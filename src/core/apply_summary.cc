@@ -232,7 +232,15 @@ ApplySummaryResult SummariseApply(const proto::CompensationModel& model,
 
   if (out.Has("bx") && out.Has("by") && out.Has("bz")) {
     const ManeuverDetection detection = DetectManeuvers(out);
-    if (!detection.maneuvers.empty()) {
+    // A validation box has pitch, roll and yaw maneuvers; turbulence and
+    // turns on survey lines can look like one kind only, and their
+    // peak-to-peak is geology, not a figure of merit.
+    bool kinds[3] = {false, false, false};
+    for (const Maneuver& m : detection.maneuvers) {
+      kinds[static_cast<int>(m.kind)] = true;
+    }
+    const bool box = kinds[0] && kinds[1] && kinds[2];
+    if (box) {
       s.set_maneuver_source(detection.source);
       const std::vector<ManeuverMetric> metrics = ManeuverPeakToPeak(
           t, result.band_before, result.band_after, detection.maneuvers);
