@@ -13,6 +13,7 @@
 #include "src/core/fit.h"
 #include "src/core/fit_model.h"
 #include "src/core/fit_report.h"
+#include "src/core/fit_report_html.h"
 
 namespace fluxtrim::cli {
 namespace {
@@ -32,6 +33,7 @@ struct FitArgs {
   double max_lag_s = 1.0;
   bool no_cross_validation = false;
   std::string summary_json;
+  std::string report;
   InputArgs input;
 };
 
@@ -126,6 +128,11 @@ int RunFit(const FitArgs& args) {
   std::ostream& text = args.summary_json == "-" ? std::cerr : std::cout;
   text << core::FormatFitSummary(fit, args.recording);
   text << "  model written to " << args.model << "\n";
+  if (!args.report.empty()) {
+    core::WriteReport(args.report, core::FitReportData(fit, table, args.recording,
+                                                       args.model));
+    text << "  report written to " << args.report << "\n";
+  }
   return 0;
 }
 
@@ -184,6 +191,8 @@ void AddFitCommand(CLI::App& app, int* exit_code) {
       ->capture_default_str();
   sub->add_flag("--no-cross-validation", args->no_cross_validation,
                 "Skip the leave-one-heading-out cross-validation");
+  sub->add_option("--report", args->report,
+                  "Write a self-contained HTML report (PATH.html)");
   sub->add_option("--summary-json", args->summary_json,
                   "Write the summary as JSON to PATH ('-' for stdout)");
   AddInputOptions(sub, &args->input);
