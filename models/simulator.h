@@ -161,8 +161,10 @@ struct SimulatorConfig {
   EnvironmentOptions environment;
   FaultOptions faults;
   std::uint64_t seed = 1;
-  // Largest number of samples accepted (memory guard).
-  std::size_t max_samples = 20000000;
+  // Largest number of samples accepted: a memory guard (the result and
+  // the tables built from it hold about 0.5 kB per sample, so 4 million
+  // samples, e.g. 111 h at 10 Hz, take about 2 GB).
+  std::size_t max_samples = 4000000;
 
   // Checks ranges; on failure *error says which value and what was
   // expected.

@@ -65,6 +65,9 @@ int RunSimulate(const SimulateArgs& args, bool seed_given) {
                                ": cannot write the segments file");
     }
   }
+  for (const std::string& w : flight.warnings) {
+    std::cerr << "warning: " << w << "\n";
+  }
   if (!args.quiet) {
     std::ostream& out = args.output == "-" ? std::cerr : std::cout;
     out << core::FormatFlightSummary(flight, core::SummarizeFlight(flight));

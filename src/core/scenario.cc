@@ -859,6 +859,14 @@ SimulatedFlight BuildTables(const proto::Scenario& s, const Plan& plan,
   return flight;
 }
 
+double ShortestManeuverPeriod(const models::ManeuverPlan& plan) {
+  double shortest = std::numeric_limits<double>::infinity();
+  for (const models::PlanSegment& g : plan.segments()) {
+    if (g.period_s > 0) shortest = std::min(shortest, g.period_s);
+  }
+  return shortest;
+}
+
 }  // namespace
 
 SimulatedFlight SimulateScenarioText(const std::string& text,
@@ -896,6 +904,22 @@ SimulatedFlight SimulateScenarioText(const std::string& text,
   }
   SimulatedFlight flight = BuildTables(scenario, plan, result);
   if (flight.name.empty()) flight.name = source_name;
+  const models::MagneticModel& wmm = models::MagneticModel::Wmm2025();
+  if (plan.config.environment.main_field &&
+      !wmm.IsValidDate(plan.config.decimal_year_at_midnight)) {
+    flight.warnings.push_back(
+        "date " + scenario.date() + " is outside the validity of " +
+        wmm.name() + " (" + Number(wmm.epoch()) + " to " +
+        Number(wmm.epoch() + 5.0) + "): the main field is extrapolated");
+  }
+  const double shortest_period_s = ShortestManeuverPeriod(plan.config.plan);
+  if (shortest_period_s * plan.config.sample_rate_hz < 10.0) {
+    flight.warnings.push_back(
+        "fewer than 10 samples per maneuver period (" +
+        Number(shortest_period_s) + " s at " +
+        Number(plan.config.sample_rate_hz) +
+        " Hz): the eddy terms will be poorly sampled");
+  }
   return flight;
 }
 

@@ -72,6 +72,9 @@ struct SimulatedFlight {
   bool has_scalar_sensor = false;
   double sample_rate_hz = 0.0;         // nominal
   std::uint64_t seed = 0;              // seed actually used
+  // Soft problems worth telling the user (e.g. a date outside the WMM's
+  // validity); the flight was simulated anyway.
+  std::vector<std::string> warnings;
 };
 
 struct SimulateOptions {

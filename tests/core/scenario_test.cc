@@ -399,6 +399,20 @@ TEST(ScenarioTest, DemoDroneFluxgateErrorsStayWithinTheStatedBounds) {
               0.05);
 }
 
+TEST(ScenarioTest, WarnsOfDatesOutsideTheModelAndSparseSampling) {
+  EXPECT_TRUE(SimulateScenarioText(SmallBox(), "inline").warnings.empty());
+  std::string late = SmallBox();
+  late.replace(late.find("2025-06-14"), 10, "2031-06-14");
+  const SimulatedFlight a = SimulateScenarioText(late, "inline");
+  ASSERT_EQ(a.warnings.size(), 1u);
+  EXPECT_TRUE(Contains(a.warnings[0], "2031-06-14")) << a.warnings[0];
+  // 6 s maneuvers at 1 Hz: 6 samples per period.
+  const SimulatedFlight b = SimulateScenarioText(
+      SmallBox("", "scalar { }", "sample_rate_hz: 1\n"), "inline");
+  ASSERT_EQ(b.warnings.size(), 1u);
+  EXPECT_TRUE(Contains(b.warnings[0], "per maneuver period")) << b.warnings[0];
+}
+
 TEST(ScenarioTest, DemoInterferenceIsOfRealisticSize) {
   // Uncompensated fixed-wing FOM of tens of nT (common practice).
   const SimulatedFlight box =
