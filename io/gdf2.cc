@@ -897,9 +897,18 @@ class Gdf2Writer : public RecordingWriter {
           "at creation");
     }
     const std::size_t rows = chunk.rows();
+    // Text goes out every kFlushRows rows: memory stays bounded whatever
+    // the chunk size.
+    constexpr std::size_t kFlushRows = 4096;
     std::string out;
-    out.reserve(rows * (4 + order_.size() * kWriteWidth + 1));
+    out.reserve(std::min(rows, kFlushRows) *
+                (4 + order_.size() * kWriteWidth + 1));
     for (std::size_t r = 0; r < rows; ++r) {
+      if (r > 0 && r % kFlushRows == 0) {
+        dat_->write(out.data(), static_cast<std::streamsize>(out.size()));
+        if (!*dat_) throw std::runtime_error(dat_name_ + ": write failed");
+        out.clear();
+      }
       if (record_type_) out += "DATA";
       for (std::size_t i : order_) {
         const double v = chunk.channel(i).values[r];
