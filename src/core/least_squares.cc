@@ -88,41 +88,85 @@ bool LeastSquaresOptions::IsValid(std::string* error) const {
 
 CompressedSystem Compress(const Eigen::Ref<const Eigen::MatrixXd>& a,
                           const Eigen::Ref<const Eigen::VectorXd>& y) {
-  CompressedSystem s;
-  const long n = a.rows();
-  const long p = a.cols();
-  s.rows = n;
-  s.y_sum_squares = y.squaredNorm();
-  Eigen::HouseholderQR<Eigen::MatrixXd> qr(a);
-  s.r = qr.matrixQR().topRows(p).triangularView<Eigen::Upper>();
-  Eigen::VectorXd qty = y;
-  qty.applyOnTheLeft(qr.householderQ().transpose());
-  s.z = qty.head(p);
-  s.outside_sum_squares = qty.tail(n - p).squaredNorm();
-  return s;
+  return CompressedDesign(a).Compress(y);
 }
+
+namespace {
+
+// Applies Q^T of a Householder QR (vectors below the diagonal of qr) to v
+// in place.
+void ApplyQTranspose(const Eigen::MatrixXd& qr, const Eigen::VectorXd& h,
+                     Eigen::VectorXd* v) {
+  const auto householder =
+      Eigen::HouseholderSequence<Eigen::MatrixXd, Eigen::VectorXd>(qr, h)
+          .setLength(std::min(qr.rows(), qr.cols()));
+  v->applyOnTheLeft(householder.transpose());
+}
+
+}  // namespace
 
 CompressedDesign::CompressedDesign(const Eigen::Ref<const Eigen::MatrixXd>& a)
     : rows_(a.rows()), cols_(a.cols()) {
-  Eigen::HouseholderQR<Eigen::MatrixXd> qr(a);
-  qr_ = qr.matrixQR();
-  coefficients_ = qr.hCoeffs();
+  const long p = cols_;
+  // Blocks of kBlockRows rows; the last one takes the remainder when less
+  // than p rows would be left.
+  long begin = 0;
+  while (begin < rows_) {
+    long len = std::min(kBlockRows, rows_ - begin);
+    if (rows_ - (begin + len) < std::max<long>(p, 1)) len = rows_ - begin;
+    Block block;
+    block.begin = begin;
+    block.rows = len;
+    Eigen::HouseholderQR<Eigen::MatrixXd> qr(a.middleRows(begin, len));
+    block.qr = qr.matrixQR();
+    block.coefficients = qr.hCoeffs();
+    blocks_.push_back(std::move(block));
+    begin += len;
+  }
+  if (blocks_.size() > 1) {
+    Eigen::MatrixXd stack =
+        Eigen::MatrixXd::Zero(static_cast<long>(blocks_.size()) * p, p);
+    for (std::size_t b = 0; b < blocks_.size(); ++b) {
+      stack.middleRows(static_cast<long>(b) * p, p) =
+          blocks_[b].qr.topRows(p).triangularView<Eigen::Upper>();
+    }
+    Eigen::HouseholderQR<Eigen::MatrixXd> qr(stack);
+    top_.rows = stack.rows();
+    top_.qr = qr.matrixQR();
+    top_.coefficients = qr.hCoeffs();
+  }
 }
 
 CompressedSystem CompressedDesign::Compress(
     const Eigen::Ref<const Eigen::VectorXd>& y) const {
   CompressedSystem s;
+  const long p = cols_;
   s.rows = rows_;
   s.y_sum_squares = y.squaredNorm();
-  s.r = qr_.topRows(cols_).triangularView<Eigen::Upper>();
-  Eigen::VectorXd qty = y;
-  const auto householder =
-      Eigen::HouseholderSequence<Eigen::MatrixXd, Eigen::VectorXd>(
-          qr_, coefficients_)
-          .setLength(std::min(rows_, cols_));
-  qty.applyOnTheLeft(householder.transpose());
-  s.z = qty.head(cols_);
-  s.outside_sum_squares = qty.tail(rows_ - cols_).squaredNorm();
+  if (blocks_.size() == 1) {
+    const Block& b = blocks_[0];
+    s.r = b.qr.topRows(p).triangularView<Eigen::Upper>();
+    Eigen::VectorXd qty = y;
+    ApplyQTranspose(b.qr, b.coefficients, &qty);
+    s.z = qty.head(p);
+    s.outside_sum_squares = qty.tail(rows_ - p).squaredNorm();
+    return s;
+  }
+  Eigen::VectorXd stacked(static_cast<long>(blocks_.size()) * p);
+  double outside = 0;
+  Eigen::VectorXd part;
+  for (std::size_t i = 0; i < blocks_.size(); ++i) {
+    const Block& b = blocks_[i];
+    part = y.segment(b.begin, b.rows);
+    ApplyQTranspose(b.qr, b.coefficients, &part);
+    stacked.segment(static_cast<long>(i) * p, p) = part.head(p);
+    outside += part.tail(b.rows - p).squaredNorm();
+  }
+  ApplyQTranspose(top_.qr, top_.coefficients, &stacked);
+  s.r = top_.qr.topRows(p).triangularView<Eigen::Upper>();
+  s.z = stacked.head(p);
+  s.outside_sum_squares =
+      outside + stacked.tail(stacked.size() - p).squaredNorm();
   return s;
 }
 

@@ -43,17 +43,28 @@ CompressedSystem Compress(const Eigen::Ref<const Eigen::MatrixXd>& a,
 
 // The QR factorisation of A kept for several right-hand sides (lag search,
 // robust iterations): each Compress(y) costs O(n p) instead of O(n p^2).
+// Tall-skinny QR (Demmel, Grigori, Hoemmen & Langou 2012, SIAM J. Sci.
+// Comput. 34:A206): blocks of kBlockRows rows are factorised on their own
+// (in cache), their p x p R factors stacked and factorised again. The
+// result is the QR of A (R unique up to the signs of its rows), with the
+// same backward stability as one Householder QR.
 class CompressedDesign {
  public:
+  static constexpr long kBlockRows = 4096;
   explicit CompressedDesign(const Eigen::Ref<const Eigen::MatrixXd>& a);
   CompressedSystem Compress(const Eigen::Ref<const Eigen::VectorXd>& y) const;
   long rows() const { return rows_; }
   long cols() const { return cols_; }
 
  private:
+  struct Block {
+    long begin = 0, rows = 0;
+    Eigen::MatrixXd qr;             // Householder vectors below, R above
+    Eigen::VectorXd coefficients;   // Householder coefficients
+  };
   long rows_ = 0, cols_ = 0;
-  Eigen::MatrixXd qr_;          // Householder vectors below, R above
-  Eigen::VectorXd coefficients_;  // Householder coefficients
+  std::vector<Block> blocks_;
+  Block top_;  // QR of the stacked R factors (when there are several blocks)
 };
 
 struct LeastSquaresOptions {
