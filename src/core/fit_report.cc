@@ -21,6 +21,13 @@ double CircularDistanceDeg(double a, double b) {
   return d > 180.0 ? 360.0 - d : d;
 }
 
+// Heading label in [0, 360): 359.7 shows as 0.
+std::string HeadingLabel(double h) {
+  double r = std::fmod(std::round(h), 360.0);
+  if (r < 0) r += 360.0;
+  return Format("%.0f", r);
+}
+
 std::string Pad(const std::string& s, std::size_t width) {
   return s.size() >= width ? s : std::string(width - s.size(), ' ') + s;
 }
@@ -123,13 +130,16 @@ std::string FormatFitSummary(const FitResult& fit, const std::string& file) {
       }
       if (!found) headings.push_back(m.maneuver.heading_deg);
     }
-    std::sort(headings.begin(), headings.end());
+    std::sort(headings.begin(), headings.end(), [](double a, double b) {
+      return std::fmod(std::fmod(std::round(a), 360.0) + 360.0, 360.0) <
+             std::fmod(std::fmod(std::round(b), 360.0) + 360.0, 360.0);
+    });
     out << "\n  peak-to-peak of the band-passed field, before -> after (nT)\n";
     const std::size_t width = 22;
     out << "  " << Pad("heading", 8) << Pad("pitch", width) << Pad("roll", width)
         << Pad("yaw", width) << "\n";
     for (double h : headings) {
-      out << "  " << Pad(Format("%.0f", h), 8);
+      out << "  " << Pad(HeadingLabel(h), 8);
       for (ManeuverKind kind :
            {ManeuverKind::kPitch, ManeuverKind::kRoll, ManeuverKind::kYaw}) {
         double before = 0, after = 0;
@@ -169,7 +179,7 @@ std::string FormatFitSummary(const FitResult& fit, const std::string& file) {
     out << "\n  cross-validation (each heading left out of the fit; FOM of "
            "its maneuvers, nT)\n";
     for (const auto& f : fit.cross_validation) {
-      out << "  " << Pad(Format("%.0f", f.heading_deg), 8) << "  "
+      out << "  " << Pad(HeadingLabel(f.heading_deg), 8) << "  "
           << Format("%.3f", f.fom_nT) << " (full fit "
           << Format("%.3f", f.fom_full_fit_nT) << ", before "
           << Format("%.3f", f.fom_before_nT) << ")\n";
