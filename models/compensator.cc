@@ -47,6 +47,17 @@ Compensator::Compensator(const CompensatorModel& model)
   max_outputs_ = engine_.max_outputs() + std::max(0, lag_floor_ + 2) + 2;
 }
 
+void Compensator::SetCoefficients(const double* coefficients) {
+  std::copy(coefficients, coefficients + term_count(),
+            model_.coefficients.begin());
+  engine_.SetCoefficients(coefficients);
+}
+
+void Compensator::KeepTermRows() {
+  keep_rows_ = true;
+  rows_.assign(ring_.size() * term_count(), 0.0);
+}
+
 int Compensator::latency_samples() const {
   return engine_.half_width() + (lag_zero_ ? 0 : std::max(0, lag_floor_ + 2));
 }
@@ -94,6 +105,11 @@ void Compensator::Store(const TermEngine::Output& o) {
   r.f = model_.scalar_sensor ? o.f : o.bt;
   r.h = o.interference - model_.interference_mean_nT;
   r.flags = o.flags;
+  if (keep_rows_) {
+    std::copy(o.row, o.row + term_count(),
+              rows_.begin() + static_cast<std::ptrdiff_t>(
+                                  (o.index % ring_.size()) * term_count()));
+  }
   if (attitude_outside_[static_cast<std::size_t>(o.index %
                                                  attitude_outside_.size())]) {
     r.flags |= kFlagAttitudeOutside;

@@ -76,6 +76,23 @@ class Compensator {
   std::size_t term_count() const { return engine_.term_count(); }
   const CompensatorModel& model() const { return model_; }
 
+  // Replaces the coefficients (physical units, term_count() values) from the
+  // next sample the engine emits on; samples already past the engine keep
+  // the old ones. Used by in-flight adaptation (core/adaptive.h); no
+  // allocation.
+  void SetCoefficients(const double* coefficients);
+
+  // Term rows of emitted samples, for observers (core/adaptive.h). Off by
+  // default (the hot path then copies nothing). When on, TermRow(s.index)
+  // for every sample s returned by the last Push or Flush gives its row
+  // (term_count() values, column order of tolles_lawson.h), valid until the
+  // next Push or Flush. Call before the first Push; allocates once.
+  void KeepTermRows();
+  const double* TermRow(std::uint64_t index) const {
+    return rows_.data() +
+           static_cast<std::size_t>(index % ring_.size()) * term_count();
+  }
+
  private:
   struct Record {
     std::uint64_t index, segment;
@@ -94,6 +111,8 @@ class Compensator {
   std::vector<TermEngine::Output> engine_out_;
   std::vector<std::uint8_t> attitude_outside_;  // by index % ring size
   std::vector<Record> ring_;
+  std::vector<double> rows_;  // by index % ring size, when KeepTermRows()
+  bool keep_rows_ = false;
   int lag_floor_ = 0;       // floor(lag / dt)
   double lag_frac_ = 0.0;   // lag / dt - floor
   bool lag_zero_ = true;

@@ -22,6 +22,8 @@ struct StreamArgs {
   std::string input = "auto";
   std::size_t max_frame_bytes = 1u << 20;
   std::size_t max_clients = 0;
+  bool adapt = false;
+  core::AdaptOptions adapt_options;
   InputArgs input_args;
 };
 
@@ -33,6 +35,22 @@ int RunStream(const StreamArgs& args) {
                                             : core::StreamFormat::kAuto;
   options.read = MakeReadOptions(args.input_args);
   options.read.max_frame_bytes = args.max_frame_bytes;
+  if (args.adapt) {
+    std::string why;
+    if (!args.adapt_options.IsValid(&why)) {
+      throw CLI::ValidationError("--adapt", why);
+    }
+    // Refuses a model that cannot be adapted (no residual sigma, no standard
+    // errors) before any sample is read.
+    core::Adapter check(model, args.adapt_options, args.model, {});
+    options.adapt = true;
+    options.adapt_options = args.adapt_options;
+    options.adapt_log = &std::cerr;
+    std::cerr << "stream: adapting the coefficients in flight (forgetting "
+              << args.adapt_options.forgetting << ", bound +-"
+              << args.adapt_options.bound_sigma
+              << " sigma); the output is no longer what apply gives\n";
+  }
   std::signal(SIGPIPE, SIG_IGN);
   if (args.listen.empty()) {
     const std::size_t n =
@@ -90,6 +108,28 @@ void AddStreamCommand(CLI::App& app, int* exit_code) {
   sub->add_option("--max-clients", args->max_clients,
                   "With --listen: stop after serving this many clients "
                   "(0: until interrupted)")
+      ->capture_default_str();
+  sub->add_flag(
+      "--adapt", args->adapt,
+      "Adapt the coefficients in flight: recursive least squares with "
+      "forgetting on the band-passed residual, each coefficient kept within "
+      "--adapt-bound-sigma standard errors of its fitted value, one log line "
+      "per update on stderr. Do NOT use it over strong anomalies or cultural "
+      "noise (the anomaly is fitted into the coefficients and real signal is "
+      "removed), during turns or outside the fit's attitude range, with few "
+      "maneuvers (poor excitation lets the estimates drift), or for data a "
+      "client accepts only with the fitted, FOM-validated model. Apply after "
+      "the flight does not reproduce an adapted stream.");
+  sub->add_option("--adapt-forgetting", args->adapt_options.forgetting,
+                  "RLS forgetting factor lambda in (0, 1]; memory about "
+                  "1/(1-lambda) samples")
+      ->capture_default_str();
+  sub->add_option("--adapt-bound-sigma", args->adapt_options.bound_sigma,
+                  "Largest change of a coefficient from its fitted value, in "
+                  "its standard errors")
+      ->capture_default_str();
+  sub->add_option("--adapt-interval", args->adapt_options.update_interval_s,
+                  "Seconds between coefficient updates")
       ->capture_default_str();
   AddInputOptions(sub, &args->input_args);
   sub->callback([args, exit_code] { *exit_code = RunStream(*args); });

@@ -175,6 +175,7 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
   models::Compensator compensator(ToCompensatorModel(model, file));
   ApplyResult result;
   result.latency_samples = compensator.latency_samples();
+  if (options.observe) compensator.KeepTermRows();
 
   io::Table chunk(reader.channels());
   io::Table pending(reader.channels());  // inputs still waiting for output
@@ -191,6 +192,7 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
   std::vector<int> i_aux(n_aux, -1);
 
   auto collect = [&](int n) {
+    if (options.observe && n > 0) options.observe(compensator, ready.data(), n);
     for (int r = 0; r < n; ++r) {
       const models::CompensatedSample& s = ready[static_cast<std::size_t>(r)];
       f_comp.push_back(s.f_comp);

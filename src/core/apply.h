@@ -61,6 +61,14 @@ struct ApplyOptions {
   std::size_t rate_check_rows = 256;
   // Called after each written chunk with the samples done so far.
   std::function<void(std::size_t samples)> progress;
+  // Optional observer of the compensated samples, called with each batch
+  // the compensator returns (n > 0), before they are written. When set, the
+  // compensator keeps its term rows (Compensator::KeepTermRows) and the
+  // observer may change its coefficients (in-flight adaptation,
+  // core/adaptive.h). Unset: the output is exactly that without it.
+  std::function<void(models::Compensator& compensator,
+                     const models::CompensatedSample* samples, int n)>
+      observe;
 };
 
 struct ApplyResult {

@@ -431,3 +431,36 @@ std::vector<double> BandPass::FilterWithGaps(const std::vector<double>& x,
 }
 
 }  // namespace fluxtrim::core
+
+namespace fluxtrim::core {
+
+CausalBandPass::CausalBandPass(const BandPass& band_pass, std::size_t channels)
+    : sections_(band_pass.sections()),
+      channels_(channels),
+      level_(channels, 0.0),
+      state_(channels * band_pass.sections().size() * 2, 0.0) {}
+
+void CausalBandPass::Reset() {
+  samples_ = 0;
+  std::fill(state_.begin(), state_.end(), 0.0);
+}
+
+void CausalBandPass::Step(const double* x, double* y) {
+  if (samples_ == 0) std::copy(x, x + channels_, level_.begin());
+  ++samples_;
+  const std::size_t ns = sections_.size();
+  for (std::size_t ch = 0; ch < channels_; ++ch) {
+    double v = x[ch] - level_[ch];
+    double* z = state_.data() + ch * ns * 2;
+    for (std::size_t s = 0; s < ns; ++s, z += 2) {
+      const auto& c = sections_[s];
+      const double out = c[0] * v + z[0];
+      z[0] = c[1] * v - c[4] * out + z[1];
+      z[1] = c[2] * v - c[5] * out;
+      v = out;
+    }
+    y[ch] = v;
+  }
+}
+
+}  // namespace fluxtrim::core

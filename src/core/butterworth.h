@@ -104,3 +104,37 @@ class BandPass {
 };
 
 }  // namespace fluxtrim::core
+
+namespace fluxtrim::core {
+
+// Causal (real-time) band-pass with the sections of a BandPass, run on
+// several channels at once: per channel, scipy.signal.sosfilt(sos, x, zi =
+// sosfilt_zi(sos) * x[0]) (direct form II transposed), i.e. the filter starts
+// in the steady state of the first sample, so a constant level gives no
+// start-up transient. Implemented as sosfilt(sos, x - x[0]) from rest, which
+// is the same output because the band-pass rejects a constant (zeros at
+// z = 1), and better conditioned on a 50000 nT field. Unlike BandPass::Filter
+// the output has the filter's phase delay. No allocation after construction.
+class CausalBandPass {
+ public:
+  CausalBandPass(const BandPass& band_pass, std::size_t channels);
+
+  // One sample of every channel: x[0..channels) in, y[0..channels) out
+  // (y may alias x). Inputs must be finite; call Reset() across a gap.
+  void Step(const double* x, double* y);
+  // Back to rest; the next sample sets the reference levels again.
+  void Reset();
+
+  std::size_t channels() const { return channels_; }
+  // Samples filtered since construction or the last Reset().
+  std::size_t samples() const { return samples_; }
+
+ private:
+  std::vector<std::array<double, 6>> sections_;
+  std::size_t channels_ = 0;
+  std::size_t samples_ = 0;
+  std::vector<double> level_;  // per channel, first sample
+  std::vector<double> state_;  // [channel][section][2], row-major
+};
+
+}  // namespace fluxtrim::core

@@ -168,6 +168,19 @@ std::size_t ServeStream(const proto::CompensationModel& model, int in_fd,
     out.flush();
     if (!out) throw std::runtime_error(name + ": the reader went away");
   };
+  std::unique_ptr<Adapter> adapter;
+  if (options.adapt) {
+    std::ostream* log = options.adapt_log;
+    adapter = std::make_unique<Adapter>(
+        model, options.adapt_options, "model",
+        [log, &name](const AdaptUpdate& u) {
+          // One write per line: clients of --listen share the log.
+          if (log) *log << (name + ": " + Adapter::FormatUpdate(u) + "\n");
+        });
+    apply.observe = [p = adapter.get()](models::Compensator& c,
+                                        const models::CompensatedSample* s,
+                                        int n) { p->Observe(c, s, n); };
+  }
   const ApplyResult result = ApplyChunked(model, *reader, *writer, apply);
   out.flush();
   if (!out) throw std::runtime_error(name + ": the reader went away");

@@ -16,6 +16,7 @@
 
 #include "io/recording.h"
 #include "proto/model.pb.h"
+#include "src/core/adaptive.h"
 
 namespace fluxtrim::core {
 
@@ -26,6 +27,12 @@ struct StreamOptions {
   io::ReadOptions read;             // --map, non-finite policy, frame limit
   std::size_t chunk_rows = 4096;    // at most this many samples per write
   std::size_t rate_check_rows = 16; // samples before the rate is checked
+  // In-flight adaptation of the coefficients (core/adaptive.h), off by
+  // default; off, the output is that of `apply` bit for bit. On, each
+  // update is one line "<name>: adapt t=..." on adapt_log (when set).
+  bool adapt = false;
+  AdaptOptions adapt_options;
+  std::ostream* adapt_log = nullptr;
 };
 
 // Decides the format from the first bytes of a stream: a length-delimited
