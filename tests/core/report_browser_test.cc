@@ -100,7 +100,7 @@ class ReportBrowserTest : public ::testing::Test {
 };
 
 TEST_F(ReportBrowserTest, FitReportRendersEveryPlotWithoutErrors) {
-  const ReportData data = testing::DemoFitReportData();
+  const ReportData data = report_testing::DemoFitReportData();
   const fs::path html = dir_ / "fit.html";
   WriteReport(html.string(), data);
   std::string extra = ColourExpectations();
@@ -114,7 +114,7 @@ TEST_F(ReportBrowserTest, FitReportRendersEveryPlotWithoutErrors) {
 }
 
 TEST_F(ReportBrowserTest, ApplyReportRendersEveryPlotWithoutErrors) {
-  const ReportData data = testing::DemoApplyReportData();
+  const ReportData data = report_testing::DemoApplyReportData();
   const fs::path html = dir_ / "apply.html";
   WriteReport(html.string(), data);
   std::string output;

@@ -14,7 +14,7 @@
 
 #include "src/core/report.h"
 
-namespace fluxtrim::core::testing {
+namespace fluxtrim::core::report_testing {
 
 // Portable standard normal from a seeded 64-bit engine (Box-Muller).
 class DemoNoise {
@@ -219,4 +219,4 @@ inline ReportData DemoApplyReportData() {
   return d;
 }
 
-}  // namespace fluxtrim::core::testing
+}  // namespace fluxtrim::core::report_testing
