@@ -8,6 +8,7 @@
 #include <fstream>
 #include <iostream>
 #include <limits>
+#include <map>
 #include <stdexcept>
 #include <utility>
 
@@ -183,9 +184,34 @@ void FramesReader::ReadHeader() {
     }
     names.push_back(c.name());
   }
+  // A header that names another time channel (time_channel: "t") has it
+  // read as "time", unless --map says otherwise or "time" is also present.
+  std::map<std::string, std::string> rename = options_.rename;
+  const std::string& declared = header.time_channel();
+  const auto is_time = [](const std::string& n) {
+    return EqualsIgnoreCase(n, "time");
+  };
+  if (!declared.empty() && !is_time(declared) &&
+      std::none_of(names.begin(), names.end(), is_time) &&
+      std::none_of(rename.begin(), rename.end(),
+                   [&](const auto& m) { return is_time(m.first); })) {
+    if (std::none_of(names.begin(), names.end(), [&](const std::string& n) {
+          return EqualsIgnoreCase(n, declared);
+        })) {
+      Fail("the header's time channel '" + declared +
+           "' is not one of its channels (" + [&] {
+             std::string all;
+             for (const std::string& n : names) {
+               all += (all.empty() ? "" : ", ") + n;
+             }
+             return all;
+           }() + ")");
+    }
+    rename["time"] = declared;
+  }
   std::vector<std::string> final_names;
   try {
-    final_names = MapChannelNames(names, options_.rename);
+    final_names = MapChannelNames(names, rename);
   } catch (const std::invalid_argument& e) {
     Fail(e.what());
   }

@@ -11,6 +11,10 @@
 // prefix. The reader never trusts a length prefix: a declared length above
 // ReadOptions::max_frame_bytes is an error before anything is allocated.
 //
+// Channels: the header's time_channel, when it names a channel other than
+// "time" and the file has no "time", is read as "time" (unless
+// ReadOptions::rename maps "time" itself).
+//
 // Values: NaN is a missing value. +-Inf follow ReadOptions::non_finite. The
 // time channel ("time" after ReadOptions::rename) must be finite in every
 // sample and increasing (ReadOptions::time_order). Frames with no values are

@@ -170,6 +170,41 @@ TEST(FramesReader, KeepsUnitsAndLongNamesAndAppliesMap) {
   EXPECT_EQ(reader.channels()[2].unit, "A");
 }
 
+TEST(FramesReader, ReadsTheHeadersDeclaredTimeChannelAsTime) {
+  std::ostringstream out;
+  proto::RecordingHeader header;
+  header.set_magic("fluxtrim-recording");
+  header.set_version(1);
+  header.add_channels()->set_name("f");
+  header.add_channels()->set_name("gps_seconds");
+  header.set_time_channel("gps_seconds");
+  ASSERT_TRUE(SerializeDelimitedToOstream(header, &out));
+  proto::Frame frame;
+  for (double v : {51000.0, 7.0}) frame.add_values(v);
+  ASSERT_TRUE(SerializeDelimitedToOstream(frame, &out));
+
+  std::istringstream in(out.str());
+  FramesReader reader(in, "declared.ftrec");
+  ASSERT_EQ(reader.channels().size(), 2u);
+  EXPECT_EQ(reader.channels()[1].name, "time");
+  Table t;
+  ASSERT_EQ(reader.ReadChunk(&t, 10), 1u);
+  EXPECT_EQ(t.Column("time")[0], 7.0);
+
+  header.set_time_channel("clock");  // not a channel: an error naming it
+  std::ostringstream bad;
+  ASSERT_TRUE(SerializeDelimitedToOstream(header, &bad));
+  std::istringstream bad_in(bad.str());
+  try {
+    FramesReader r(bad_in, "bad.ftrec");
+    FAIL() << "expected InputError";
+  } catch (const InputError& e) {
+    EXPECT_NE(std::string(e.what()).find("time channel 'clock' is not one"),
+              std::string::npos)
+        << e.what();
+  }
+}
+
 TEST(FramesReader, ReadsAFileByPath) {
   const std::string path = ::testing::TempDir() + "frames_test_" +
                            std::to_string(::getpid()) + ".ftrec";
