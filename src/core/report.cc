@@ -694,6 +694,7 @@ void WriteSpectrum(Writer& w, const ReportData& d, const ReportOptions& opt) {
   } else {
     SpectrumOptions so = opt.spectrum;
     so.sample_rate_hz = d.sample_rate_hz;
+    so.fill_gaps_up_to = opt.spectrum_fill_gaps_up_to;
     if (std::isfinite(d.band_low_hz) && std::isfinite(d.band_high_hz)) {
       plot.AddSpan(d.band_low_hz, d.band_high_hz, "fit band", "#eef3f7");
     }

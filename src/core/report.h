@@ -19,6 +19,25 @@
 // A section whose data is empty is left out (with a short note), so an
 // apply report without maneuvers has no plot-maneuvers.
 //
+// Filling it, e.g. in a fit command (every field is optional; leave what
+// you do not have empty or NaN):
+//
+//   core::ReportData r;
+//   r.command = "fit";
+//   r.input_file = path;
+//   r.sample_rate_hz = rate;  r.fom_before_nT = ...;  r.fom_after_nT = ...;
+//   for (each heading h) {
+//     core::ReportPanel p;  p.title = "Heading 090°";
+//     p.time_s = ...;  p.before = ...;  p.after = ...;   // band-passed, nT
+//     for (each maneuver m of h) p.spans.push_back({m.start_s, m.end_s, "roll"});
+//     r.panels.push_back(std::move(p));
+//   }
+//   r.maneuvers.push_back({"090°", "roll", p2p_before, p2p_after});
+//   r.coefficients.push_back({"perm_x", value, std_error});
+//   r.spectrum_before = f;  r.spectrum_after = f_comp;  // raw total field
+//   r.time_s = t;  r.roll_deg = ...;  r.lat_deg = ...;  r.lon_deg = ...;
+//   core::WriteReport(report_path, r);
+//
 // Units: times in seconds (any origin: plots show time since `time_origin_s`,
 // default the earliest time in the data); fields in nT; angles in degrees;
 // coefficients in their physical units (permanent nT, induced 1, eddy s,
@@ -154,6 +173,9 @@ struct ReportOptions {
   std::string title;  // "" = from the command ("Compensation fit report")
   std::size_t max_points_per_line = 1600;  // decimation budget per series
   SpectrumOptions spectrum;  // sample_rate_hz is taken from the data
+  // Overrides spectrum.fill_gaps_up_to: dropouts of up to this many samples
+  // are bridged for the spectrum only (plots show the gaps as gaps).
+  std::size_t spectrum_fill_gaps_up_to = 3;
 };
 
 // The whole HTML document.

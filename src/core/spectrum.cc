@@ -104,14 +104,39 @@ bool SpectrumOptions::IsValid(std::string* error) const {
   return reason.empty();
 }
 
-Spectrum AmplitudeSpectrum(const std::vector<double>& series,
+Spectrum AmplitudeSpectrum(const std::vector<double>& input,
                            const SpectrumOptions& options) {
   std::string error;
   if (!options.IsValid(&error)) {
     throw std::invalid_argument("spectrum options: " + error);
   }
   Spectrum out;
-  const std::size_t n = series.size();
+  const std::size_t n = input.size();
+  // Bridge short dropouts on a copy; leave the caller's series alone.
+  std::vector<double> bridged;
+  const std::vector<double>* source = &input;
+  if (options.fill_gaps_up_to > 0) {
+    for (std::size_t i = 0; i < n;) {
+      if (std::isfinite(input[i])) {
+        ++i;
+        continue;
+      }
+      std::size_t j = i;
+      while (j < n && !std::isfinite(input[j])) ++j;
+      if (i > 0 && j < n && j - i <= options.fill_gaps_up_to) {
+        if (bridged.empty()) bridged = input;
+        const double a = input[i - 1], b = input[j];
+        const double span = static_cast<double>(j - i + 1);
+        for (std::size_t k = i; k < j; ++k) {
+          bridged[k] = a + (b - a) * static_cast<double>(k - i + 1) / span;
+        }
+        out.samples_bridged += j - i;
+      }
+      i = j;
+    }
+    if (!bridged.empty()) source = &bridged;
+  }
+  const std::vector<double>& series = *source;
   if (n < 2) {
     out.message = "fewer than 2 samples";
     return out;
@@ -176,9 +201,14 @@ Spectrum AmplitudeSpectrum(const std::vector<double>& series,
     out.density[k] = std::sqrt(one_sided * mean_power / (rate * sum_w2));
   }
   out.usable = true;
+  if (out.samples_bridged > 0) {
+    out.message = std::to_string(out.samples_bridged) +
+                  " non-finite sample(s) bridged by interpolation";
+  }
   if (out.segments_skipped > 0) {
-    out.message = std::to_string(out.segments_skipped) +
-                  " segment(s) skipped for non-finite samples";
+    if (!out.message.empty()) out.message += "; ";
+    out.message += std::to_string(out.segments_skipped) +
+                   " segment(s) skipped for non-finite samples";
   }
   return out;
 }

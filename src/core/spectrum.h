@@ -29,6 +29,10 @@ struct SpectrumOptions {
   // Fraction of a segment shared with the next, in [0, 1). Segments start
   // every segment_length - floor(overlap * segment_length) samples.
   double overlap = 0.5;
+  // Runs of at most this many non-finite samples with finite samples on
+  // both sides are bridged by linear interpolation before the transform
+  // (isolated dropouts would otherwise discard whole segments); 0 = none.
+  std::size_t fill_gaps_up_to = 0;
 
   // False (with a reason in *error) for a rate <= 0 or non-finite, a
   // segment shorter than 2 samples, or overlap outside [0, 1).
@@ -61,6 +65,7 @@ struct Spectrum {
   std::size_t segment_length = 0;    // m actually used
   std::size_t segments_used = 0;
   std::size_t segments_skipped = 0;  // segments holding a non-finite sample
+  std::size_t samples_bridged = 0;   // non-finite samples interpolated
   bool usable = false;               // at least one segment was used
   std::string message;               // why not usable, or notes
 };

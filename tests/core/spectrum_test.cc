@@ -308,6 +308,39 @@ TEST_F(SpectrumTest, SegmentsWithNonFiniteSamplesAreSkipped) {
   EXPECT_FALSE(AmplitudeSpectrum({1.0}, options).usable);
 }
 
+TEST_F(SpectrumTest, ShortDropoutsAreBridgedWhenAsked) {
+  const std::vector<double> clean = TestSignal(4096, 9);
+  std::vector<double> holed = clean;
+  holed[1000] = std::numeric_limits<double>::quiet_NaN();
+  holed[2000] = holed[2001] = std::numeric_limits<double>::infinity();
+  holed[3000] = holed[3001] = holed[3002] = std::numeric_limits<double>::quiet_NaN();
+  // The expected series: straight lines across the bridged runs (by hand).
+  std::vector<double> expected = clean;
+  expected[1000] = 0.5 * (clean[999] + clean[1001]);
+  expected[2000] = clean[1999] + (clean[2002] - clean[1999]) / 3.0;
+  expected[2001] = clean[1999] + 2.0 * (clean[2002] - clean[1999]) / 3.0;
+  SpectrumOptions options;
+  options.segment_length = 512;
+  options.fill_gaps_up_to = 2;  // the run of three at 3000 stays a gap
+  const Spectrum s = AmplitudeSpectrum(holed, options);
+  EXPECT_EQ(s.samples_bridged, 3u);
+  EXPECT_EQ(s.segments_skipped, 2u);  // the two segments over 3000..3002
+  // Same as the spectrum of the hand-bridged series with that run removed
+  // the same way (identical arithmetic except the interpolation: 1e-12).
+  expected[3000] = expected[3001] = expected[3002] = std::numeric_limits<double>::quiet_NaN();
+  SpectrumOptions plain = options;
+  plain.fill_gaps_up_to = 0;
+  const Spectrum ref = AmplitudeSpectrum(expected, plain);
+  ASSERT_EQ(ref.segments_used, s.segments_used);
+  for (std::size_t k = 0; k < s.density.size(); ++k) {
+    EXPECT_NEAR(s.density[k], ref.density[k], 1e-12 * (1.0 + ref.density[k]));
+  }
+  // Leading and trailing runs have no two neighbours: never bridged.
+  std::vector<double> edges = clean;
+  edges[0] = edges[4095] = std::numeric_limits<double>::quiet_NaN();
+  EXPECT_EQ(AmplitudeSpectrum(edges, options).samples_bridged, 0u);
+}
+
 TEST_F(SpectrumTest, InvalidOptionsAreRejected) {
   SpectrumOptions options;
   std::string error;
