@@ -27,6 +27,7 @@ import json
 import os
 import re
 import shutil
+import signal
 import struct
 import subprocess
 import sys
@@ -187,10 +188,17 @@ def hex_colour(s):
 def run_chromium(chromium, args, timeout_s):
     with tempfile.TemporaryDirectory(prefix="fluxtrim_chromium_") as profile:
         cmd = [chromium] + CHROMIUM_FLAGS + ["--user-data-dir=" + profile] + args
-        proc = subprocess.run(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                              timeout=timeout_s)
-        return proc.returncode, proc.stdout.decode("utf-8", "replace"), \
-            proc.stderr.decode("utf-8", "replace")
+        # Own process group, so a hung browser goes with all its helpers.
+        proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                                start_new_session=True)
+        try:
+            out, err = proc.communicate(timeout=timeout_s)
+        except subprocess.TimeoutExpired:
+            os.killpg(proc.pid, signal.SIGKILL)
+            proc.communicate()
+            return -1, "", "chromium did not finish within %.0f s" % timeout_s
+        return proc.returncode, out.decode("utf-8", "replace"), \
+            err.decode("utf-8", "replace")
 
 
 def page_log_problems(stderr):
