@@ -251,7 +251,7 @@ svg.plot { display: block; max-width: 100%; height: auto;
   border: 1px solid var(--rule); }
 table { border-collapse: collapse; font-size: 13px; }
 th, td { padding: 3px 10px; border-bottom: 1px solid var(--rule);
-  text-align: left; vertical-align: top; }
+  text-align: left; vertical-align: top; overflow-wrap: anywhere; }
 th { color: var(--muted); font-weight: 600; }
 table.kv th { width: 36%; font-weight: 400; }
 td.n, th.n { text-align: right; font-variant-numeric: tabular-nums;
@@ -568,7 +568,7 @@ void WriteCoefficients(Writer& w, const ReportData& d) {
     std::string unit = g == "permanent" ? "nT"
                        : g == "induced" ? ""
                        : g == "eddy"    ? "s"
-                       : g == "aux"     ? "nT per unit"
+                       : g == "aux"     ? "nT/unit"
                                         : "";
     std::string scaled_unit;
     if (e3 != 0) {
@@ -587,7 +587,10 @@ void WriteCoefficients(Writer& w, const ReportData& d) {
               " terms";
     o.y_label = "coefficient (" + scaled_unit + ")";
     o.width_px = kHalfWidth;
-    o.height_px = 240.0;
+    std::size_t longest = 0;
+    for (const auto* c : list) longest = std::max(longest, c->name.size());
+    // Long names (aux channels) are drawn slanted: give them room.
+    o.height_px = longest * list.size() > 70 ? 290.0 : 240.0;
     o.y_include_zero = true;
     SvgPlot plot(o);
     std::vector<std::string> names;

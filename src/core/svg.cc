@@ -428,10 +428,14 @@ SvgPlot::Layout SvgPlot::Resolve() const {
     }
   }
   // Y axis.
+  const double y_data_lo =
+      std::isfinite(o.y_min) ? o.y_min : (ye.Valid() ? ye.lo : kNaN);
+  const double y_data_hi =
+      std::isfinite(o.y_max) ? o.y_max : (ye.Valid() ? ye.hi : kNaN);
+  const bool y_fixed = std::isfinite(o.y_min) && std::isfinite(o.y_max);
   {
-    double lo = std::isfinite(o.y_min) ? o.y_min : (ye.Valid() ? ye.lo : kNaN);
-    double hi = std::isfinite(o.y_max) ? o.y_max : (ye.Valid() ? ye.hi : kNaN);
-    const bool fixed = std::isfinite(o.y_min) && std::isfinite(o.y_max);
+    const double lo = y_data_lo, hi = y_data_hi;
+    const bool fixed = y_fixed;
     if (o.y_scale == AxisScale::kLog) {
       L.y = LogTicks(lo, hi, !fixed);
     } else {
@@ -457,27 +461,42 @@ SvgPlot::Layout SvgPlot::Resolve() const {
   }
   top += 6.0;
 
-  // Equal aspect may change the tick labels and thus the left margin: two
-  // passes settle it.
-  for (int pass = 0; pass < 2; ++pass) {
+  // Thinned y ticks, rotated category labels and equal aspect change the
+  // margins: a few passes settle them.
+  bool y_thinned = false;
+  for (int pass = 0; pass < 3; ++pass) {
     double label_width = 0.0;
     for (const auto& s : L.y.labels) label_width = std::max(label_width, TextWidth(s, fs));
-    const double left = 8.0 + (o.y_label.empty() ? 0.0 : 18.0) + label_width + 8.0;
+    double left = 8.0 + (o.y_label.empty() ? 0.0 : 18.0) + label_width + 8.0;
     double bottom = 6.0 + fs + 6.0 + (o.x_label.empty() ? 0.0 : fs + 8.0);
     double right = 12.0;
     if (!categorical && !L.x.labels.empty()) {
       right = std::max(right, TextWidth(L.x.labels.back(), fs) / 2.0 + 4.0);
     }
-    L.area = {left, top, std::max(20.0, o.width_px - left - right),
-              std::max(20.0, o.height_px - top - bottom)};
     if (categorical && category_count > 0) {
       double widest = 0.0;
       for (const auto& s : L.x.labels) widest = std::max(widest, TextWidth(s, fs));
-      const double slot = L.area.width / static_cast<double>(category_count);
-      if (widest > slot - 4.0) {  // rotated labels need more room below
-        bottom += widest * 0.5;
-        L.area.height = std::max(20.0, o.height_px - top - bottom);
+      const double slot =
+          (o.width_px - left - right) / static_cast<double>(category_count);
+      if (widest > slot - 4.0) {
+        // Labels rotated by 35 degrees about their end: they reach
+        // widest*sin(35) below the axis and widest*cos(35) to the left of
+        // the first category, which must stay inside the SVG.
+        bottom += widest * 0.6;
+        const double leftmost = left + slot / 2 - widest * 0.82;
+        if (leftmost < 4.0) left += 4.0 - leftmost;
       }
+    }
+    L.area = {left, top, std::max(20.0, o.width_px - left - right),
+              std::max(20.0, o.height_px - top - bottom)};
+    // Fewer y ticks when they would crowd (under ~22 px apart).
+    if (!y_thinned && o.y_scale == AxisScale::kLinear && !(o.y_tick_step > 0.0) &&
+        !(o.x_unit_in_y_units > 0.0) && L.y.values.size() > 2 &&
+        L.area.height / static_cast<double>(L.y.values.size() - 1) < 22.0) {
+      y_thinned = true;
+      const int intervals = std::max(2, static_cast<int>(L.area.height / 30.0));
+      L.y = LinearTicks(y_data_lo, y_data_hi, intervals, !y_fixed);
+      continue;
     }
     if (!(o.x_unit_in_y_units > 0.0) || categorical || XIsLog() ||
         o.y_scale == AxisScale::kLog) {
@@ -801,9 +820,14 @@ std::string SvgPlot::Render() const {
   }
   if (!o.y_label.empty()) {
     const double x = 8.0 + fs * 0.9, y = a.top + a.height / 2;
+    // A label longer than the axis would run into the title: shrink it.
+    const double label_fs = std::clamp(
+        fs * (a.height + 16.0) / std::max(1.0, TextWidth(o.y_label, fs)), 8.0, fs);
     s << "<text x=\"" << N(x) << "\" y=\"" << N(y)
       << "\" text-anchor=\"middle\" transform=\"rotate(-90 " << N(x) << ' '
-      << N(y) << ")\" fill=\"" << EscapeXml(o.text_colour) << "\">"
+      << N(y) << ")\" fill=\"" << EscapeXml(o.text_colour) << "\"";
+    if (label_fs < fs) s << " font-size=\"" << SvgNumber(label_fs, 1) << "\"";
+    s << ">"
       << EscapeXml(o.y_label) << "</text>\n";
   }
 

@@ -395,6 +395,39 @@ TEST(SvgPlotTest, EqualAspectDrawsUnitsAlike) {
   EXPECT_GE(yt.hi, 60.05);
 }
 
+// Labels stay legible: y ticks at least ~20 px apart on a short plot,
+// and x labels never drawn over each other (the writer skips some).
+TEST(SvgPlotTest, TicksNeverCrowdTheAxis) {
+  PlotOptions o;
+  o.height_px = 150;
+  o.y_tick_intervals = 8;
+  SvgPlot plot(o);
+  plot.AddLine("", {0, 1, 2}, {0.0, 0.32, 0.1}, SeriesStyle());
+  const AxisTicks y = plot.YTicks();
+  ASSERT_GE(y.values.size(), 2u);
+  EXPECT_GE(plot.PixelY(y.values[0]) - plot.PixelY(y.values[1]), 20.0);
+
+  PlotOptions wide;
+  wide.width_px = 200;
+  wide.x_tick_intervals = 20;
+  SvgPlot dense(wide);
+  dense.AddLine("", {100000, 200000}, {0, 1}, SeriesStyle());
+  const std::string svg = dense.Render();
+  // Label boxes (0.6 em per character, as the writer estimates) of the
+  // drawn x labels do not overlap.
+  double last_right = -1e9;
+  for (const std::string& tag : TagsOf(svg, "text")) {
+    if (Attr(tag, "text-anchor") != "middle" || !Attr(tag, "transform").empty()) continue;
+    const std::size_t b = svg.find(tag) + tag.size();
+    const std::string label = svg.substr(b, svg.find('<', b) - b);
+    if (label.empty() || !std::isdigit(static_cast<unsigned char>(label[0]))) continue;
+    const double x = std::stod(Attr(tag, "x"));
+    const double half = 0.6 * 11.0 * static_cast<double>(label.size()) / 2;
+    EXPECT_GE(x - half, last_right) << label;
+    last_right = x + half;
+  }
+}
+
 TEST(SvgPlotTest, EmptyPlotShowsItsNote) {
   PlotOptions o;
   o.title = "Nothing";
