@@ -390,7 +390,8 @@ void WritePanels(Writer& w, const ReportData& d, const TimeAxis& ta,
          << kBefore << "\"></span>terracotta) and after (<span class=\"swatch\" "
             "style=\"background:"
          << kAfter << "\"></span>blue) compensation."
-         << (maneuvers ? " Shaded: pitch, roll and yaw maneuvers." : "")
+         << (maneuvers ? " Shaded: pitch, roll and yaw maneuvers."
+                       : " Grey: their difference, the interference removed.")
          << "</p>\n<div class=\"grid2\">\n";
   // One y range for every panel so headings (or lines) compare at a glance.
   double lo = std::numeric_limits<double>::infinity(), hi = -lo;
@@ -425,11 +426,26 @@ void WritePanels(Writer& w, const ReportData& d, const TimeAxis& ta,
     const std::vector<double> t = ta.Map(p.time_s);
     plot.AddLine("before", t, p.before, Style(kBefore, 1.2));
     plot.AddLine("after", t, p.after, Style(kAfter, 1.4));
+    if (p.spans.empty()) {
+      std::vector<double> removed(std::min(p.before.size(), p.after.size()));
+      for (std::size_t k = 0; k < removed.size(); ++k) {
+        removed[k] = p.before[k] - p.after[k];
+      }
+      plot.AddLine("before \xE2\x88\x92 after", t, removed,
+                   Style(kReportColourRemoved, 1.2));
+    }
     if (p.time_s.empty()) plot.AddNote("no samples");
     const double sb = StdDev(p.before), sa = StdDev(p.after);
     std::string caption = "Standard deviation: before " + Sig(sb) + " nT, after " +
                           Sig(sa) + " nT";
     if (std::isfinite(sb / sa)) caption += " (ratio " + Sig(sb / sa) + ")";
+    if (p.spans.empty()) {
+      std::vector<double> removed(std::min(p.before.size(), p.after.size()));
+      for (std::size_t k = 0; k < removed.size(); ++k) {
+        removed[k] = p.before[k] - p.after[k];
+      }
+      caption += "; removed interference " + Sig(StdDev(removed)) + " nT";
+    }
     w.Figure(plot.Render(), Esc(caption) + ".");
   }
   w.html << "</div>\n";

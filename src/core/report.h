@@ -65,6 +65,8 @@ struct ReportSpan {
 // these colours in a rendered page.
 inline constexpr const char* kReportColourBefore = "#c8553d";
 inline constexpr const char* kReportColourAfter = "#1b4965";
+// before - after on survey-line panels (the interference removed).
+inline constexpr const char* kReportColourRemoved = "#7b8794";
 inline constexpr const char* kReportColourPermanent = "#1b4965";
 inline constexpr const char* kReportColourInduced = "#5a8f29";
 inline constexpr const char* kReportColourEddy = "#8e4585";
@@ -78,7 +80,9 @@ inline constexpr const char* kReportColourEnd = "#9b2c2c";
 
 // One time panel of band-passed total field before and after compensation:
 // one per heading for a calibration box (spans = its maneuvers), or one per
-// survey line or time window for apply.
+// survey line or time window for apply. A panel without spans also shows
+// the difference before - after (the interference removed), which on
+// survey lines is otherwise hidden under two nearly equal traces.
 struct ReportPanel {
   std::string title;            // "Heading 000°", "Line 1010", ...
   std::vector<double> time_s;   // sample times

@@ -183,8 +183,12 @@ AxisTicks LogTicks(double data_min, double data_max, bool loose) {
   t.step = 0.0;
   const double decades = std::log10(t.hi / t.lo);
   const int stride = std::max(1, static_cast<int>(std::ceil(decades / 8.0 - 1e-9)));
-  auto label = [](double v, int e) {
-    if (e >= -3 && e <= 4) return FormatTickLabel(v, std::pow(10.0, e));
+  // One style per axis: plain numbers when every decade is in 0.001..10000,
+  // else powers of ten throughout (no "0.001" next to "10⁻⁴").
+  const bool plain = std::ceil(std::log10(t.lo) - 1e-9) >= -3 &&
+                     std::floor(std::log10(t.hi) + 1e-9) <= 4;
+  auto label = [plain](double v, int e) {
+    if (plain) return FormatTickLabel(v, std::pow(10.0, e));
     const double mantissa = v / std::pow(10.0, e);
     if (std::fabs(mantissa - 1.0) < 1e-9) return PowerOfTenLabel(e);
     return Format("%.*f", mantissa, 0) + "\xC3\x97" + PowerOfTenLabel(e);

@@ -130,6 +130,8 @@ TEST(ReportTest, FitReportContainsEveryPlotAndSection) {
   EXPECT_GE(Count(html, ">pitch</text>"), 4u);
   EXPECT_GE(Count(html, ">roll</text>"), 4u);
   EXPECT_GE(Count(html, ">yaw</text>"), 4u);
+  // Heading panels (with maneuvers) do not draw the difference trace.
+  EXPECT_EQ(Count(html, ">before \xE2\x88\x92 after</text>"), 0u);
 }
 
 TEST(ReportTest, PageIsSelfContained) {
@@ -226,6 +228,10 @@ TEST(ReportTest, ApplyReportHasLinePanelsAndNoManeuverPlots) {
   EXPECT_EQ(html.find("id=\"plot-excitation\""), std::string::npos);
   EXPECT_NE(html.find("id=\"plot-spectrum\""), std::string::npos);
   EXPECT_NE(html.find("Line 1010"), std::string::npos);
+  // Survey-line panels also draw the removed interference, before - after.
+  EXPECT_EQ(Count(html, ">before \xE2\x88\x92 after</text>"), 2u);
+  EXPECT_NE(html.find(std::string("stroke=\"") + kReportColourRemoved + "\""),
+            std::string::npos);
   EXPECT_NE(html.find("Compensation applied"), std::string::npos);
   for (const auto& id : ReportPlotIds(data)) {
     EXPECT_EQ(Count(html, "id=\"" + id + "\""), 1u) << id;

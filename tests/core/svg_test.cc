@@ -185,6 +185,12 @@ TEST(SvgTicksTest, LogTicksAreDecadesAndOneTwoFive) {
   t = LogTicks(1e-12, 1e12);  // 24 decades: at most ~8 labelled
   EXPECT_LE(t.values.size(), 9u);
   EXPECT_EQ(t.labels.front(), "10\xE2\x81\xBB\xC2\xB9\xC2\xB2");
+  // One label style per axis: an axis reaching 1e-4 uses powers of ten
+  // throughout, not "0.001" next to "10⁻⁴".
+  t = LogTicks(2e-4, 30.0);  // loose: 1e-4 .. 1e2, seven decades
+  ASSERT_EQ(t.labels.size(), 7u);
+  EXPECT_EQ(t.labels[1], "10\xE2\x81\xBB\xC2\xB3");  // 10^-3
+  EXPECT_EQ(t.labels[5], "10\xC2\xB9");                // 10^1
   t = LogTicks(-1.0, 5.0);  // invalid for a log axis
   EXPECT_DOUBLE_EQ(t.lo, 1.0);
   EXPECT_DOUBLE_EQ(t.hi, 10.0);
