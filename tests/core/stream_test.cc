@@ -223,6 +223,7 @@ TEST(StreamTest, ClientDisconnectingMidFrameIsReportedAndDoesNotStopTheServer) {
   // A frames header and part of a frame, then the client goes away.
   const std::string rec = TempPath("frames.ftrec");
   {
+    WriteRecording(TempPath("tcp.csv"), 300);
     io::Table t = io::ReadRecording(TempPath("tcp.csv"));
     io::WriteRecording(rec, t);
   }
