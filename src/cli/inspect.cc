@@ -1,5 +1,7 @@
 // fluxtrim inspect REC: what a recording holds before anything is fitted.
 #include <iostream>
+#include <sstream>
+#include <stdexcept>
 
 #include "models/wmm.h"
 #include "src/cli/commands.h"
@@ -13,8 +15,34 @@ struct InspectArgs {
   std::string recording;
   std::string json_path;
   std::string date;
+  std::string terms = "default";
+  std::string aux;
+  std::string band;
   InputArgs input;
 };
+
+std::vector<std::string> SplitComma(const std::string& s) {
+  std::vector<std::string> out;
+  std::stringstream words(s);
+  std::string word;
+  while (std::getline(words, word, ',')) {
+    const auto b = word.find_first_not_of(" \t");
+    const auto e = word.find_last_not_of(" \t");
+    if (b != std::string::npos) out.push_back(word.substr(b, e - b + 1));
+  }
+  return out;
+}
+
+double ParseNumber(const std::string& option, const std::string& text) {
+  try {
+    std::size_t used = 0;
+    const double v = std::stod(text, &used);
+    if (used != text.size()) throw std::invalid_argument(text);
+    return v;
+  } catch (const std::exception&) {
+    throw CLI::ValidationError(option, "expected a number, got '" + text + "'");
+  }
+}
 
 int RunInspect(const InspectArgs& args) {
   io::ReadOptions read = MakeReadOptions(args.input);
@@ -26,6 +54,30 @@ int RunInspect(const InspectArgs& args) {
       options.decimal_year = models::ParseDecimalYear(args.date);
     } catch (const std::invalid_argument& e) {
       throw CLI::ValidationError("--date", e.what());
+    }
+  }
+  try {
+    options.excitation.terms = models::ParseTermSet(args.terms);
+  } catch (const std::invalid_argument& e) {
+    throw CLI::ValidationError("--terms", e.what());
+  }
+  options.excitation.terms.aux = SplitComma(args.aux);
+  for (const std::string& name : options.excitation.terms.aux) {
+    if (!table.Has(name)) {
+      throw CLI::ValidationError("--aux", "no channel '" + name + "' in " +
+                                              args.recording);
+    }
+  }
+  if (!args.band.empty()) {
+    const std::vector<std::string> edges = SplitComma(args.band);
+    if (edges.size() != 2) {
+      throw CLI::ValidationError("--band", "expected LOW,HIGH in Hz");
+    }
+    options.excitation.band.low_hz = ParseNumber("--band", edges[0]);
+    options.excitation.band.high_hz = ParseNumber("--band", edges[1]);
+    std::string error;
+    if (!options.excitation.band.IsValid(&error)) {
+      throw CLI::ValidationError("--band", error);
     }
   }
   const proto::InspectSummary summary =
@@ -51,6 +103,16 @@ void AddInspectCommand(CLI::App& app, int* exit_code) {
   sub->add_option("--date", args->date,
                   "Date of the flight (YYYY-MM-DD or decimal year): compares "
                   "the field with WMM2025 at the recording's position");
+  sub->add_option("--terms", args->terms,
+                  "Term set of the excitation check: default (16), full "
+                  "(18), or groups such as permanent,induced")
+      ->capture_default_str();
+  sub->add_option("--aux", args->aux,
+                  "Extra channels as regressors c_i * channel in the "
+                  "excitation check (comma list)");
+  sub->add_option("--band", args->band,
+                  "Band-pass edges LOW,HIGH (Hz) of the excitation check "
+                  "(default 0.1,0.9, as fit)");
   AddInputOptions(sub, &args->input);
   sub->callback([args, exit_code] { *exit_code = RunInspect(*args); });
 }

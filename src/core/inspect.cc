@@ -6,7 +6,10 @@
 #include <sstream>
 #include <vector>
 
+#include "io/error.h"
 #include "models/wmm.h"
+#include "src/core/butterworth.h"
+#include "src/core/maneuvers.h"
 
 namespace fluxtrim::core {
 namespace {
@@ -57,6 +60,92 @@ void AddFieldSanity(const std::vector<double>& magnitude,
                   options.max_plausible_nT);
     field->set_note(note);
     summary->add_warnings(note);
+  }
+}
+
+void AddManeuversAndExcitation(const io::Table& recording,
+                               const std::string& file,
+                               const InspectOptions& options,
+                               proto::InspectSummary* summary) {
+  try {
+    const ManeuverDetection detection = DetectManeuvers(recording);
+    summary->set_maneuver_source(detection.source);
+    for (const Maneuver& m : detection.maneuvers) {
+      proto::DetectedManeuver* out = summary->add_maneuvers();
+      out->set_heading_deg(m.heading_deg);
+      out->set_kind(ManeuverKindName(m.kind));
+      out->set_start_s(m.start_s);
+      out->set_end_s(m.end_s);
+    }
+    for (const std::string& note : detection.notes) summary->add_maneuver_notes(note);
+    if (detection.maneuvers.empty()) {
+      summary->add_warnings(
+          "no pitch, roll or yaw maneuvers found (source: " + detection.source +
+          "): fit needs a compensation box or --segments FILE");
+    } else if (detection.maneuvers.size() < 12) {
+      summary->add_warnings("found " + std::to_string(detection.maneuvers.size()) +
+                            " of the 12 maneuvers of a full box (pitch, roll, "
+                            "yaw at four headings)");
+    }
+  } catch (const std::invalid_argument& e) {
+    summary->add_maneuver_notes(std::string("maneuver detection skipped: ") + e.what());
+  }
+
+  ExcitationOptions excitation = options.excitation;
+  excitation.source = file;
+  summary->set_term_set(models::TermSetName(excitation.terms));
+  ExcitationSummary ex;
+  try {
+    ex = AnalyseExcitation(recording, excitation);
+  } catch (const std::invalid_argument& e) {
+    summary->set_excitation_note(std::string("excitation check skipped: ") + e.what());
+    return;
+  } catch (const io::InputError& e) {
+    summary->set_excitation_note(std::string("excitation check skipped: ") + e.what());
+    return;
+  }
+  summary->set_field_source(ex.field_source);
+  try {
+    const BandPass band(excitation.band, ex.sample_rate_hz);
+    summary->set_band_low_hz(band.low_hz());
+    summary->set_band_high_hz(band.high_hz());
+  } catch (const std::invalid_argument&) {
+  }
+  if (!ex.usable) {
+    summary->set_excitation_note("excitation check skipped: " + ex.message);
+    summary->add_warnings(ex.message);
+    return;
+  }
+  summary->set_excitation_rows(static_cast<std::uint32_t>(ex.rows));
+  summary->set_excitation_residual_nt(ex.residual_rms_nT);
+  for (const GroupExcitation& g : ex.groups) {
+    proto::GroupExcitation* out = summary->add_excitation();
+    out->set_group(g.group);
+    out->set_column_unit(g.column_unit);
+    for (double v : g.singular_values) out->add_singular_values(v);
+    for (const std::string& t : g.undetermined_terms) out->add_undetermined_terms(t);
+    for (const TermExcitation& t : ex.terms) {
+      if (t.group != g.group) continue;
+      proto::TermExcitation* term = out->add_terms();
+      term->set_name(t.name);
+      term->set_unit(t.unit);
+      term->set_band_rms(t.band_rms);
+      term->set_independent_rms(t.independent_rms);
+      term->set_std_error(t.std_error);
+      term->set_plausible_bound(t.plausible_bound);
+      term->set_determined(t.determined);
+      term->set_reason(t.reason);
+    }
+  }
+  const std::vector<std::string> undetermined = ex.UndeterminedTerms();
+  if (!undetermined.empty()) {
+    std::string list;
+    for (const std::string& t : undetermined) list += (list.empty() ? "" : ", ") + t;
+    summary->add_warnings(std::to_string(undetermined.size()) +
+                          " term(s) not determined by this recording: " + list +
+                          "; a fit holds them at 0 (fly pitch, roll and yaw at "
+                          "each of four headings; vary aux channels during the "
+                          "maneuvers)");
   }
 }
 
@@ -213,6 +302,7 @@ proto::InspectSummary Inspect(const io::Table& recording,
       }
     }
   }
+  if (options.maneuvers && has_fluxgate) AddManeuversAndExcitation(recording, file, options, &summary);
   return summary;
 }
 
@@ -265,27 +355,62 @@ std::string FormatInspectSummary(const proto::InspectSummary& s) {
         << s.maneuver_source() << ")\n";
     for (const proto::DetectedManeuver& m : s.maneuvers()) {
       std::snprintf(line, sizeof line,
-                    "  heading %5.1f deg  %-5s  %9.2f - %9.2f s\n",
-                    m.heading_deg(), m.kind().c_str(), m.start_s(), m.end_s());
+                    "  heading %5.1f deg  %-5s  %9.2f - %9.2f s  (%.0f s)\n",
+                    m.heading_deg(), m.kind().c_str(), m.start_s(), m.end_s(),
+                    m.end_s() - m.start_s());
       out << line;
     }
   }
+  for (const std::string& note : s.maneuver_notes()) out << "  note: " << note << "\n";
   if (s.excitation_size() > 0) {
-    out << "Excitation (singular values of the band-passed term columns)\n";
+    std::snprintf(line, sizeof line,
+                  "Excitation (terms %s, field %s, band %.3g-%.3g Hz, %u "
+                  "samples; residual of a plain least-squares fit %.3g nT "
+                  "RMS)\n",
+                  s.term_set().c_str(), s.field_source().c_str(),
+                  s.band_low_hz(), s.band_high_hz(), s.excitation_rows(),
+                  s.excitation_residual_nt());
+    out << line;
+    out << "  singular values of the band-passed term columns per group "
+           "(RMS, column unit)\n";
     for (const proto::GroupExcitation& g : s.excitation()) {
-      out << "  " << g.group() << ":";
+      std::snprintf(line, sizeof line, "  %-10s [%s]", g.group().c_str(),
+                    g.column_unit().c_str());
+      out << line;
       for (double v : g.singular_values()) {
         std::snprintf(line, sizeof line, " %.3g", v);
         out << line;
       }
       out << "\n";
-      if (g.undetermined_terms_size() > 0) {
-        out << "    not determined by this recording:";
-        for (const std::string& t : g.undetermined_terms()) out << " " << t;
-        out << "\n";
+    }
+    std::snprintf(line, sizeof line, "  %-10s %12s %12s %12s  %s\n", "term",
+                  "band RMS", "independent", "std error", "");
+    out << line;
+    for (const proto::GroupExcitation& g : s.excitation()) {
+      for (const proto::TermExcitation& t : g.terms()) {
+        if (t.determined()) {
+          std::snprintf(line, sizeof line, "  %-10s %12.3g %12.3g %12.3g  %s\n",
+                        t.name().c_str(), t.band_rms(), t.independent_rms(),
+                        t.std_error(), t.unit().c_str());
+        } else {
+          std::snprintf(line, sizeof line,
+                        "  %-10s %12.3g %12s %12s  NOT DETERMINED: %s\n",
+                        t.name().c_str(), t.band_rms(), "-", "-",
+                        t.reason().c_str());
+        }
+        out << line;
       }
     }
+    bool any = false;
+    for (const proto::GroupExcitation& g : s.excitation()) {
+      if (g.undetermined_terms_size() == 0) continue;
+      if (!any) out << "  not determined by this recording:";
+      any = true;
+      for (const std::string& t : g.undetermined_terms()) out << " " << t;
+    }
+    out << (any ? "\n" : "  every term is determined by this recording\n");
   }
+  if (!s.excitation_note().empty()) out << s.excitation_note() << "\n";
   for (const std::string& w : s.warnings()) out << "warning: " << w << "\n";
   return out.str();
 }

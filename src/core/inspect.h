@@ -8,6 +8,7 @@
 
 #include "io/table.h"
 #include "proto/inspect.pb.h"
+#include "src/core/excitation.h"
 
 namespace fluxtrim::core {
 
@@ -20,8 +21,11 @@ struct InspectOptions {
   // about 22,000-67,000 nT); outside this band means units or scaling.
   double min_plausible_nT = 20000.0;
   double max_plausible_nT = 70000.0;
-  // Analyse maneuvers and excitation (needs bx, by, bz).
+  // Detect maneuvers (core::DetectManeuvers: attitude, else fluxgate
+  // heading) and run the excitation check (core::AnalyseExcitation: terms,
+  // band, derivative as the fit). Both need bx, by, bz.
   bool maneuvers = true;
+  ExcitationOptions excitation;
 };
 
 // recording must have been read with TimeOrderPolicy::kAccept so that
