@@ -197,11 +197,16 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
     rows += run.fit_end - run.fit_begin;
     runs.push_back(run);
   }
-  if (rows < std::max<std::size_t>(4 * p, 2 * p + 10)) {
-    result.message = "only " + std::to_string(rows) +
-                     " band-passed samples between gaps (need at least " +
-                     std::to_string(std::max<std::size_t>(4 * p, 2 * p + 10)) +
-                     "): too short or too gappy for the excitation check";
+  // The fit's floor (fit.cc): 20 rows per term and five periods of the
+  // band's lower edge.
+  const std::size_t min_rows = std::max<std::size_t>(
+      20 * p, static_cast<std::size_t>(5.0 / band.low_hz() * rate));
+  if (rows < min_rows) {
+    result.message = "only " + Sci(static_cast<double>(rows) / rate) +
+                     " s of band-passed data between gaps (need " +
+                     Sci(static_cast<double>(min_rows) / rate) +
+                     " s, about five periods of the band's lower edge): too "
+                     "short or too gappy for the excitation check";
     return result;
   }
   result.rows = rows;

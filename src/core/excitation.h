@@ -92,8 +92,9 @@ struct GroupExcitation {
 };
 
 struct ExcitationSummary {
-  // False when the recording is too short or too gappy for the band-pass;
-  // message says why. Everything else is then empty.
+  // False when the recording is too short or too gappy (fewer band-passed
+  // rows than the fit needs: 20 per term and five periods of the band's
+  // lower edge); message says why. Everything else is then empty.
   bool usable = false;
   std::string message;
   double sample_rate_hz = 0;
