@@ -1,5 +1,6 @@
 // fluxtrim fit REC -o MODEL: Tolles-Lawson compensation fit of a
 // compensation flight (the numerics live in src/core/fit.h).
+#include <fstream>
 #include <iostream>
 #include <memory>
 #include <sstream>
@@ -7,13 +8,16 @@
 #include <vector>
 
 #include "fluxtrim/version.h"
+#include "io/error.h"
 #include "io/model_file.h"
+#include "io/sensor_file.h"
 #include "src/cli/commands.h"
 #include "src/cli/common.h"
 #include "src/core/fit.h"
 #include "src/core/fit_model.h"
 #include "src/core/fit_report.h"
 #include "src/core/fit_report_html.h"
+#include "src/core/joint_fit.h"
 
 namespace fluxtrim::cli {
 namespace {
@@ -34,8 +38,44 @@ struct FitArgs {
   bool no_cross_validation = false;
   std::string summary_json;
   std::string report;
+  std::string sensor;         // --sensor SENSOR
+  bool joint_sensor = false;  // --joint-sensor
+  std::string sensor_output;  // --sensor-output PATH (joint estimate)
   InputArgs input;
 };
+
+// The fit summary JSON with the sensor calibration the model holds, as
+// "sensor" (the keys of the sensor file) and "sensor_source" ("file" or
+// "joint"). The FitSummary message has no such field, so the object is
+// extended here.
+std::string SummaryJsonWithSensor(const std::string& summary_json,
+                                  const proto::SensorCalibration& sensor,
+                                  const std::string& sensor_source) {
+  const std::size_t close = summary_json.rfind('}');
+  if (close == std::string::npos) return summary_json;
+  std::string sensor_json = ToJson(sensor);
+  while (!sensor_json.empty() &&
+         (sensor_json.back() == '\n' || sensor_json.back() == ' ')) {
+    sensor_json.pop_back();
+  }
+  std::string head = summary_json.substr(0, close);
+  while (!head.empty() && (head.back() == '\n' || head.back() == ' ')) {
+    head.pop_back();
+  }
+  return head + ",\n \"sensor_source\": \"" + sensor_source +
+         "\",\n \"sensor\": " + sensor_json + "\n}\n";
+}
+
+void WriteText(const std::string& path, const std::string& text) {
+  if (path == "-") {
+    std::cout << text;
+    return;
+  }
+  std::ofstream out(path, std::ios::binary);
+  out << text;
+  out.close();
+  if (!out) throw std::runtime_error(path + ": cannot write the JSON file");
+}
 
 std::vector<std::string> SplitComma(const std::string& s) {
   std::vector<std::string> out;
@@ -104,33 +144,104 @@ int RunFit(const FitArgs& args) {
     options.maneuvers_given = true;
     options.maneuver_source = "segments file " + args.segments;
   }
+  proto::SensorCalibration sensor;
+  const bool has_sensor_file = !args.sensor.empty();
+  if (has_sensor_file) {
+    sensor = io::ReadSensorFile(args.sensor);
+    if (!sensor.temperature_channel().empty()) {
+      read.required.push_back(sensor.temperature_channel());
+    }
+  }
   const io::Table table = io::ReadRecording(args.recording, read);
-  const core::FitResult fit = core::FitModel(table, options);
+  if (args.joint_sensor && !table.Has("f")) {
+    std::cerr << "fluxtrim fit: " << args.recording
+              << ": --joint-sensor needs a scalar sensor (channel f): its "
+                 "absolute level pins the calibrated magnitude. Without one, "
+                 "calibrate the fluxgate with `fluxtrim calibrate` (WMM2025 "
+                 "reference) and fit with --sensor\n";
+    return 1;
+  }
+
+  core::FitResult fit;
+  core::JointFitResult joint;
+  std::string sensor_source;
+  if (args.joint_sensor) {
+    core::JointFitOptions joint_options;
+    joint_options.fit = options;
+    joint = core::JointFit(table, joint_options);
+    fit = joint.fit;
+    if (!joint.usable) {
+      fit.usable = false;
+      fit.message = joint.message;
+    }
+    sensor = joint.calibration;
+    sensor_source = "joint";
+  } else if (has_sensor_file) {
+    try {
+      fit = core::FitWithSensor(table, sensor, options);
+    } catch (const std::invalid_argument& e) {
+      throw io::InputError(args.recording, "channels", e.what());
+    }
+    sensor_source = "file";
+  } else {
+    fit = core::FitModel(table, options);
+  }
 
   if (!args.summary_json.empty()) {
-    WriteJson(args.summary_json,
-              core::SummaryFromFit(fit, args.recording,
-                                   fit.usable ? args.model : "",
-                                   FLUXTRIM_VERSION));
+    const auto summary = core::SummaryFromFit(
+        fit, args.recording, fit.usable ? args.model : "", FLUXTRIM_VERSION);
+    if (sensor_source.empty() || (args.joint_sensor && !joint.usable &&
+                                  joint.calibration.schema_version() == 0)) {
+      WriteJson(args.summary_json, summary);
+    } else {
+      WriteText(args.summary_json,
+                SummaryJsonWithSensor(ToJson(summary), sensor, sensor_source));
+    }
   }
   if (!fit.usable) {
     std::cerr << "fluxtrim fit: " << args.recording
               << ": cannot fit a compensation model: " << fit.message << "\n";
     for (const auto& w : fit.warnings) std::cerr << "  - " << w << "\n";
+    if (!table.Has("f") && fit.message.find("maneuvers") != std::string::npos) {
+      std::cerr << "  (a drone or vehicle rotation flight calibrates the "
+                   "fluxgate: `fluxtrim calibrate`; the compensation fit "
+                   "needs maneuvers of its own or their times with "
+                   "--segments)\n";
+    }
     return 1;
   }
   core::FitProvenance provenance;
   provenance.file = args.recording;
   provenance.channel_map = read.rename;
   provenance.tool_version = FLUXTRIM_VERSION;
-  io::WriteModelFile(args.model, core::ModelFromFit(fit, provenance));
+  proto::CompensationModel model = core::ModelFromFit(fit, provenance);
+  if (!sensor_source.empty()) core::AttachSensor(sensor, &model);
+  io::WriteModelFile(args.model, model);
+  if (args.joint_sensor && !args.sensor_output.empty()) {
+    io::WriteSensorFile(args.sensor_output, sensor);
+  }
   // The summary goes to stdout unless the JSON does.
   std::ostream& text = args.summary_json == "-" ? std::cerr : std::cout;
   text << core::FormatFitSummary(fit, args.recording);
-  text << "  model written to " << args.model << "\n";
+  if (args.joint_sensor) {
+    text << core::FormatJointSensorSummary(joint);
+  } else if (has_sensor_file) {
+    text << "  fluxgate calibrated with " << args.sensor << " ("
+         << (sensor.mode().empty() ? "calibration" : sensor.mode())
+         << ", reference " << sensor.reference() << ")\n";
+  }
+  text << "  model written to " << args.model
+       << (sensor_source.empty() ? "" : " (with the sensor calibration)")
+       << "\n";
+  if (args.joint_sensor && !args.sensor_output.empty()) {
+    text << "  sensor calibration written to " << args.sensor_output << "\n";
+  }
   if (!args.report.empty()) {
-    core::WriteReport(args.report, core::FitReportData(fit, table, args.recording,
-                                                       args.model));
+    const io::Table calibrated =
+        sensor_source.empty() ? io::Table() : core::CalibratedTable(table, sensor);
+    core::WriteReport(args.report,
+                      core::FitReportData(fit, sensor_source.empty() ? table : calibrated,
+                                          args.recording, args.model));
     text << "  report written to " << args.report << "\n";
   }
   return 0;
@@ -195,6 +306,22 @@ void AddFitCommand(CLI::App& app, int* exit_code) {
                   "Write a self-contained HTML report (PATH.html)");
   sub->add_option("--summary-json", args->summary_json,
                   "Write the summary as JSON to PATH ('-' for stdout)");
+  auto* sensor = sub->add_option(
+      "--sensor", args->sensor,
+      "Fluxgate calibration written by `fluxtrim calibrate`: the direction "
+      "cosines (and |B| without a scalar sensor) come from calibrated "
+      "vectors, and the model stores the calibration so that apply "
+      "calibrates too");
+  auto* joint = sub->add_flag(
+      "--joint-sensor", args->joint_sensor,
+      "Estimate the fluxgate's gains, offsets and non-orthogonality together "
+      "with the Tolles-Lawson coefficients in one Ceres problem (needs a "
+      "scalar sensor f; exit 1 without); the model stores the estimate");
+  sub->add_option("--sensor-output", args->sensor_output,
+                  "With --joint-sensor: also write the joint calibration as "
+                  "a sensor file")
+      ->needs(joint);
+  sensor->excludes(joint);
   AddInputOptions(sub, &args->input);
   sub->callback([args, exit_code] { *exit_code = RunFit(*args); });
 }

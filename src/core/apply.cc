@@ -8,6 +8,7 @@
 
 #include "io/error.h"
 #include "io/memory_recording.h"
+#include "io/sensor_file.h"
 #include "models/tolles_lawson.h"
 
 namespace fluxtrim::core {
@@ -71,6 +72,9 @@ models::CompensatorModel ToCompensatorModel(
   }
   if (model.has_sensor()) {
     const proto::SensorCalibration& s = model.sensor();
+    // The same content checks as a sensor file (gains positive, angles
+    // below 45 deg, ...): a hand-edited model must not give NaN output.
+    io::CheckSensorCalibration(s, source, "sensor.");
     m.has_sensor = true;
     auto set3 = [](const proto::Vector3& v, double scale, double* out) {
       out[0] = v.x() * scale;
