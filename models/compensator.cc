@@ -41,7 +41,11 @@ Compensator::Compensator(const CompensatorModel& model)
   lag_zero_ = model_.lag_s == 0.0;
   const int k = engine_.half_width();
   const int reach = std::abs(lag_floor_) + 3;
-  ring_.resize(static_cast<std::size_t>(2 * (k + reach) + 8));
+  // A power-of-two ring: slots are masks, not divisions.
+  std::size_t slots = 1;
+  while (slots < static_cast<std::size_t>(2 * (k + reach) + 8)) slots *= 2;
+  ring_.resize(slots);
+  ring_mask_ = slots - 1;
   attitude_outside_.assign(ring_.size(), 0);
   engine_out_.resize(static_cast<std::size_t>(engine_.max_outputs()));
   max_outputs_ = engine_.max_outputs() + std::max(0, lag_floor_ + 2) + 2;
@@ -51,6 +55,12 @@ void Compensator::SetCoefficients(const double* coefficients) {
   std::copy(coefficients, coefficients + term_count(),
             model_.coefficients.begin());
   engine_.SetCoefficients(coefficients);
+}
+
+void Compensator::SetCoefficients(const double* coefficients,
+                                  double interference_mean_nT) {
+  SetCoefficients(coefficients);
+  model_.interference_mean_nT = interference_mean_nT;
 }
 
 void Compensator::KeepTermRows() {
@@ -81,7 +91,7 @@ int Compensator::Push(double time, const double b[3], double f,
               (std::isfinite(pitch_deg) && (pitch_deg < model_.pitch_min_deg ||
                                             pitch_deg > model_.pitch_max_deg));
   }
-  attitude_outside_[static_cast<std::size_t>(pushed_ % attitude_outside_.size())] =
+  attitude_outside_[static_cast<std::size_t>(pushed_ & ring_mask_)] =
       outside ? 1 : 0;
   ++pushed_;
   const double scalar = model_.scalar_sensor ? f : kNaN;
@@ -97,7 +107,7 @@ int Compensator::Flush(CompensatedSample* out) {
 }
 
 void Compensator::Store(const TermEngine::Output& o) {
-  Record& r = ring_[static_cast<std::size_t>(o.index % ring_.size())];
+  Record& r = ring_[static_cast<std::size_t>(o.index & ring_mask_)];
   r.index = o.index;
   r.segment = o.segment;
   r.time = o.time;
@@ -108,10 +118,9 @@ void Compensator::Store(const TermEngine::Output& o) {
   if (keep_rows_) {
     std::copy(o.row, o.row + term_count(),
               rows_.begin() + static_cast<std::ptrdiff_t>(
-                                  (o.index % ring_.size()) * term_count()));
+                                  (o.index & ring_mask_) * term_count()));
   }
-  if (attitude_outside_[static_cast<std::size_t>(o.index %
-                                                 attitude_outside_.size())]) {
+  if (attitude_outside_[static_cast<std::size_t>(o.index & ring_mask_)]) {
     r.flags |= kFlagAttitudeOutside;
   }
   ++received_;

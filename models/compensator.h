@@ -81,6 +81,11 @@ class Compensator {
   // the old ones. Used by in-flight adaptation (core/adaptive.h); no
   // allocation.
   void SetCoefficients(const double* coefficients);
+  // The same, and the level removed from H (nT, the model's
+  // interference_mean_nT at start): adaptation keeps f_comp continuous
+  // across a change of coefficients with it.
+  void SetCoefficients(const double* coefficients,
+                       double interference_mean_nT);
 
   // Term rows of emitted samples, for observers (core/adaptive.h). Off by
   // default (the hot path then copies nothing). When on, TermRow(s.index)
@@ -90,7 +95,7 @@ class Compensator {
   void KeepTermRows();
   const double* TermRow(std::uint64_t index) const {
     return rows_.data() +
-           static_cast<std::size_t>(index % ring_.size()) * term_count();
+           static_cast<std::size_t>(index & ring_mask_) * term_count();
   }
 
  private:
@@ -103,15 +108,16 @@ class Compensator {
   int Drain(bool flushing, CompensatedSample* out, int n);
   void Finish(std::uint64_t index, CompensatedSample* out);
   const Record& At(std::uint64_t index) const {
-    return ring_[static_cast<std::size_t>(index % ring_.size())];
+    return ring_[static_cast<std::size_t>(index & ring_mask_)];
   }
 
   CompensatorModel model_;
   TermEngine engine_;
   std::vector<TermEngine::Output> engine_out_;
-  std::vector<std::uint8_t> attitude_outside_;  // by index % ring size
+  std::vector<std::uint8_t> attitude_outside_;  // by index & ring_mask_
   std::vector<Record> ring_;
-  std::vector<double> rows_;  // by index % ring size, when KeepTermRows()
+  std::vector<double> rows_;  // by index & ring_mask_, when KeepTermRows()
+  std::uint64_t ring_mask_ = 0;  // ring size (a power of two) - 1
   bool keep_rows_ = false;
   int lag_floor_ = 0;       // floor(lag / dt)
   double lag_frac_ = 0.0;   // lag / dt - floor

@@ -28,6 +28,12 @@ struct StreamArgs {
 };
 
 int RunStream(const StreamArgs& args) {
+  if (args.adapt) {
+    std::string why;
+    if (!args.adapt_options.IsValid(&why)) {
+      throw CLI::ValidationError("--adapt", why);
+    }
+  }
   const proto::CompensationModel model = io::ReadModelFile(args.model);
   core::StreamOptions options;
   options.format = args.input == "csv"      ? core::StreamFormat::kCsv
@@ -36,18 +42,15 @@ int RunStream(const StreamArgs& args) {
   options.read = MakeReadOptions(args.input_args);
   options.read.max_frame_bytes = args.max_frame_bytes;
   if (args.adapt) {
-    std::string why;
-    if (!args.adapt_options.IsValid(&why)) {
-      throw CLI::ValidationError("--adapt", why);
-    }
     // Refuses a model that cannot be adapted (no residual sigma, no standard
     // errors) before any sample is read.
     core::Adapter check(model, args.adapt_options, args.model, {});
     options.adapt = true;
     options.adapt_options = args.adapt_options;
     options.adapt_log = &std::cerr;
-    std::cerr << "stream: adapting the coefficients in flight (forgetting "
-              << args.adapt_options.forgetting << ", bound +-"
+    std::cerr << "stream: adapting the coefficients in flight (drift "
+              << args.adapt_options.drift_sigma_per_min
+              << " sigma/min, bound +-"
               << args.adapt_options.bound_sigma
               << " sigma); the output is no longer what apply gives\n";
   }
@@ -109,27 +112,31 @@ void AddStreamCommand(CLI::App& app, int* exit_code) {
                   "With --listen: stop after serving this many clients "
                   "(0: until interrupted)")
       ->capture_default_str();
-  sub->add_flag(
+  CLI::Option* adapt = sub->add_flag(
       "--adapt", args->adapt,
-      "Adapt the coefficients in flight: recursive least squares with "
-      "forgetting on the band-passed residual, each coefficient kept within "
-      "--adapt-bound-sigma standard errors of its fitted value, one log line "
-      "per update on stderr. Do NOT use it over strong anomalies or cultural "
-      "noise (the anomaly is fitted into the coefficients and real signal is "
-      "removed), during turns or outside the fit's attitude range, with few "
-      "maneuvers (poor excitation lets the estimates drift), or for data a "
-      "client accepts only with the fitted, FOM-validated model. Apply after "
-      "the flight does not reproduce an adapted stream.");
-  sub->add_option("--adapt-forgetting", args->adapt_options.forgetting,
-                  "RLS forgetting factor lambda in (0, 1]; memory about "
-                  "1/(1-lambda) samples")
+      "Adapt the coefficients in flight: a Kalman filter tracks their change "
+      "since the fit on the band-passed residual, each coefficient kept "
+      "within --adapt-bound-sigma standard errors of its fitted value, the "
+      "level of f_comp kept continuous, one log line per update on stderr. "
+      "Do NOT use it over strong anomalies or cultural noise (the anomaly is "
+      "fitted into the coefficients and real signal is removed), outside the "
+      "fit's attitude range, or for data a client accepts only with the "
+      "fitted, FOM-validated model. Apply after the flight does not "
+      "reproduce an adapted stream.");
+  sub->add_option("--adapt-drift", args->adapt_options.drift_sigma_per_min,
+                  "Expected change of each coefficient in one minute, in its "
+                  "standard errors (random walk; >= 0): larger follows a "
+                  "change faster and fits more noise")
+      ->needs(adapt)
       ->capture_default_str();
   sub->add_option("--adapt-bound-sigma", args->adapt_options.bound_sigma,
                   "Largest change of a coefficient from its fitted value, in "
-                  "its standard errors")
+                  "its standard errors (> 0)")
+      ->needs(adapt)
       ->capture_default_str();
   sub->add_option("--adapt-interval", args->adapt_options.update_interval_s,
-                  "Seconds between coefficient updates")
+                  "Seconds between coefficient updates (> 0)")
+      ->needs(adapt)
       ->capture_default_str();
   AddInputOptions(sub, &args->input_args);
   sub->callback([args, exit_code] { *exit_code = RunStream(*args); });

@@ -39,8 +39,9 @@ BandPass ModelBandPass(const proto::CompensationModel& model,
 
 bool AdaptOptions::IsValid(std::string* error) const {
   std::string why;
-  if (!(forgetting > 0.0 && forgetting <= 1.0)) {
-    why = "forgetting factor must be in (0, 1]";
+  if (!(drift_sigma_per_min >= 0.0 && std::isfinite(drift_sigma_per_min))) {
+    why = "drift must be zero or a positive number of standard errors per "
+          "minute";
   } else if (!(bound_sigma > 0.0 && std::isfinite(bound_sigma))) {
     why = "bound must be a positive number of standard errors";
   } else if (!(update_interval_s > 0.0 && std::isfinite(update_interval_s))) {
@@ -92,16 +93,20 @@ Adapter::Adapter(const proto::CompensationModel& model,
   warmup_samples_ = static_cast<std::size_t>(std::ceil(warmup_s * rate));
   z_.assign(m, 0.0);
   applied_z_.assign(m, 0.0);
+  // P = 0: the fit is the start, exactly (header comment).
   p_.assign(m * m, 0.0);
-  for (std::size_t i = 0; i < m; ++i) {
-    p_[i * m + i] = residual_sigma_ * residual_sigma_;
-  }
-  llt_ = Eigen::LLT<Eigen::MatrixXd>(static_cast<Eigen::Index>(m));
+  q_ = options_.drift_sigma_per_min * options_.drift_sigma_per_min /
+       (60.0 * rate);
+  const double colour = std::max(
+      1.0, rate / (2.0 * (band_pass_.high_hz() - band_pass_.low_hz())));
+  r_ = residual_sigma_ * residual_sigma_ * colour;
   in_.assign(1 + m, 0.0);
   out_.assign(1 + m, 0.0);
   u_.assign(m, 0.0);
   pu_.assign(m, 0.0);
   theta_ = theta_fit_;
+  applied_theta_ = theta_fit_;
+  mean_ = model.interference_mean_nt();
   summary_.adapted_terms = m;
   summary_.change_sigma.assign(p, 0.0);
   summary_.coefficients = theta_fit_;
@@ -141,38 +146,42 @@ void Adapter::Observe(models::Compensator& compensator,
       ++summary_.samples_used;
     }
     if (seen_since_update_ >= interval_samples_ && since_update_ > 0) {
-      Update(compensator, s.time);
+      Update(compensator, s.time, row);
     }
   }
 }
 
 void Adapter::Step(const double* u, double y) {
-  // R = lambda R + u u' + (1 - lambda) R0,  r = lambda r + u y, with the
-  // prior R0 = residual_sigma^2 I kept at constant weight.
+  // Kalman filter for a random-walk state z with the scalar measurement
+  // y = u'z + v (Haykin, Adaptive Filter Theory, 4th ed., ch. 10, from
+  // memory): predict P += Q, then gain k = P u / (u'P u + r),
+  // z += k (y - u'z), P -= k (P u)'. O(m^2) a sample.
   const std::size_t m = adapted_.size();
-  const double lambda = options_.forgetting;
-  const double prior = (1.0 - lambda) * residual_sigma_ * residual_sigma_;
+  double* pm = p_.data();
+  for (std::size_t a = 0; a < m; ++a) pm[a * m + a] += q_;
+  double upu = 0.0, e = y;
   for (std::size_t a = 0; a < m; ++a) {
-    double* row = p_.data() + a * m;
-    for (std::size_t b = 0; b < m; ++b) row[b] = lambda * row[b] + u[a] * u[b];
-    row[a] += prior;
-    pu_[a] = lambda * pu_[a] + u[a] * y;
+    const double* row = pm + a * m;
+    double v = 0.0;
+    for (std::size_t b = 0; b < m; ++b) v += row[b] * u[b];
+    pu_[a] = v;
+    upu += u[a] * v;
+    e -= u[a] * z_[a];
+  }
+  const double s = upu + r_;
+  const double ks = e / s;
+  for (std::size_t a = 0; a < m; ++a) {
+    z_[a] = std::clamp(z_[a] + pu_[a] * ks, -options_.bound_sigma,
+                       options_.bound_sigma);
+    double* row = pm + a * m;
+    const double ga = pu_[a] / s;
+    for (std::size_t b = 0; b < m; ++b) row[b] -= ga * pu_[b];
   }
 }
 
-void Adapter::Update(models::Compensator& compensator, double time) {
+void Adapter::Update(models::Compensator& compensator, double time,
+                     const double* row) {
   const std::size_t m = adapted_.size();
-  // z = R^-1 r (R is symmetric positive definite: it holds the prior).
-  Eigen::Map<const Eigen::MatrixXd> r_matrix(p_.data(), static_cast<Eigen::Index>(m),
-                                             static_cast<Eigen::Index>(m));
-  Eigen::Map<const Eigen::VectorXd> r_vector(pu_.data(), static_cast<Eigen::Index>(m));
-  Eigen::Map<Eigen::VectorXd> z(z_.data(), static_cast<Eigen::Index>(m));
-  llt_.compute(r_matrix);
-  z = llt_.solve(r_vector);
-  for (std::size_t a = 0; a < m; ++a) {
-    if (!std::isfinite(z_[a])) z_[a] = applied_z_[a];  // keep the last good
-    z_[a] = std::clamp(z_[a], -options_.bound_sigma, options_.bound_sigma);
-  }
   AdaptUpdate update;
   update.time = time;
   for (std::size_t a = 0; a < m; ++a) {
@@ -187,7 +196,15 @@ void Adapter::Update(models::Compensator& compensator, double time) {
     applied_z_[a] = z_[a];
     summary_.change_sigma[j] = z_[a];
   }
-  compensator.SetCoefficients(theta_.data());
+  // Level continuity (header comment): the removed interference does not
+  // jump at this sample.
+  for (std::size_t a = 0; a < m; ++a) {
+    const std::size_t j = adapted_[a];
+    summary_.level_nT += row[j] * (theta_[j] - applied_theta_[j]);
+  }
+  applied_theta_ = theta_;
+  compensator.SetCoefficients(theta_.data(), mean_ + summary_.level_nT);
+  update.level_nT = summary_.level_nT;
   summary_.coefficients = theta_;
   summary_.largest_sigma = std::max(summary_.largest_sigma, update.largest_sigma);
   ++summary_.updates;
@@ -201,11 +218,11 @@ std::string Adapter::FormatUpdate(const AdaptUpdate& u) {
   char buf[256];
   std::snprintf(buf, sizeof buf,
                 "adapt t=%.3f s: %d moved, largest change %.2f sigma%s%s%s, "
-                "%d clipped, %zu samples used",
+                "%d clipped, %zu samples used, level %+.4f nT",
                 u.time, u.moved, u.largest_sigma,
                 u.largest_name.empty() ? "" : " (",
                 u.largest_name.c_str(), u.largest_name.empty() ? "" : ")",
-                u.clipped, u.samples_used);
+                u.clipped, u.samples_used, u.level_nT);
   return buf;
 }
 

@@ -1,7 +1,7 @@
 #pragma once
 // In-flight adaptation of the compensation coefficients (`stream --adapt`):
-// exponentially weighted (recursive) least squares on band-passed quantities,
-// bounded by the fit's standard errors.
+// a Kalman filter tracks the change of the coefficients since the fit, on
+// band-passed quantities, bounded by the fit's standard errors.
 //
 // For every compensated sample s the observer forms, in real time,
 //   g(t)  = f(t + lag) - row(t) . theta_fit             (nT)
@@ -9,33 +9,42 @@
 // with BP the causal Butterworth band-pass of the model's filter settings
 // (CausalBandPass, same sections as the fit's zero-phase filter), row the
 // Tolles-Lawson term row (models/tolles_lawson.h), theta_fit the fitted
-// coefficients and sigma_j their standard errors. The unknown is
-// z = (theta - theta_fit) / sigma, the change of each coefficient in units
-// of its standard error: this equilibrates the columns (each u_j is the
-// field of a one-sigma change) and makes the bound a box.
+// coefficients and sigma_j their standard errors. The state is
+// z = (theta - theta_fit) / sigma, the change of each coefficient since the
+// fit in units of its standard error, and y = u'z + v.
 //
-// Estimator: exponentially weighted least squares with forgetting factor
-// lambda, the cost that RLS minimises (Haykin, Adaptive Filter Theory,
-// 4th ed., ch. 9), with the fit as a prior of constant weight:
-//   min_z  sum_i lambda^(n-i) (y_i - u_i' z)^2 + residual_sigma^2 |z|^2,
-// the prior being z ~ N(0, I) (the fit's standard errors) against the fit's
-// band-passed residual sigma. It is accumulated in information form,
-//   R = lambda R + u u' + (1 - lambda) residual_sigma^2 I,  r = lambda r + u y
-// (O(m^2) a sample), and solved z = R^-1 r by Cholesky at each update. The
-// standard RLS recursion lets the prior decay as lambda^n, and its
-// covariance then winds up in poorly excited directions: on a simulated
-// 600 s flight without drift it moved perm_z, ind_xx and ind_yy to the 3
-// sigma bound and tripled the band-passed residual (tests/core/
-// adaptive_test.cc); keeping the prior (regularised RLS) avoids that. The
-// solution is clipped to |z_j| <= bound_sigma, so each coefficient's total
-// change from the fitted value never exceeds bound_sigma x its std_error.
+// Estimator: Kalman filter for a random walk (Haykin, Adaptive Filter
+// Theory, 4th ed., ch. 10, from memory; Ljung & Gunnarsson, Automatica 26
+// (1990) 7-21, the random-walk alternative to a forgetting factor):
+//   z(n+1) = z(n) + w,  w ~ N(0, q I),  q = drift_sigma_per_min^2 / (60 rate)
+//   v ~ N(0, r),  r = residual_sigma^2 * max(1, rate / (2 (high - low)))
+// The factor in r counts one independent sample per 1/(2 bandwidth) s: the
+// band-passed residual is coloured, and treating its samples as
+// independent would make the filter fit noise (common practice). The state
+// starts at z = 0 with P = 0: the fit is taken as exact at the start and
+// only the change since then is estimated (the fit's own error is not what
+// adaptation is for). After each step z is clipped to |z_j| <= bound_sigma,
+// so no coefficient ever moves more than bound_sigma x its std_error from
+// the fitted value. O(m^2) a sample, no allocation.
 //
-// Every update_interval_s the compensator receives theta_fit + sigma * z.
+// Every update_interval_s the compensator receives theta_fit + sigma * z
+// and a level: the interference it removes is kept continuous across the
+// update (interference_mean_nT += row . (theta_new - theta_old) at the
+// update's sample). Without that, every update is a step of
+// row . delta_theta in f_comp, and row holds large constant parts (c_z near
+// 1, Bt c_i c_j of tens of thousands of nT): changes of a few hundredths of
+// a standard error of perm_z or ind_xx, harmless to the band-passed
+// interference itself, stepped f_comp by several pT each second and
+// multiplied the band-passed residual of the demo validation box by up to
+// 6 (measured; tests/core/adaptive_test.cc). With the level carried over,
+// adaptation changes how the interference varies with attitude, not the
+// level at a steady attitude.
+//
 // Held coefficients (not determined by the fit) and coefficients without a
 // positive standard error are never changed. Samples that are flagged (gap
 // edge, derivative not valid, attitude outside the fit's range, lag edge,
-// bad) do not enter the RLS; a gap or a bad sample restarts the band-pass,
-// and the first warmup_s after a (re)start only settle the filter.
+// bad) do not enter the filter; a gap or a bad sample restarts the
+// band-pass, and the first warmup_s after a (re)start only settle it.
 //
 // Adapted coefficients are not validated by a figure of merit, and `apply`
 // after the flight does not reproduce an adapted stream.
@@ -46,8 +55,6 @@
 #include <string>
 #include <vector>
 
-#include <Eigen/Dense>
-
 #include "models/compensator.h"
 #include "proto/model.pb.h"
 #include "src/core/butterworth.h"
@@ -55,9 +62,11 @@
 namespace fluxtrim::core {
 
 struct AdaptOptions {
-  // RLS forgetting factor lambda, 0 < lambda <= 1. The memory is about
-  // 1 / (1 - lambda) samples: 2000 samples (200 s at 10 Hz) by default.
-  double forgetting = 0.9995;
+  // Random walk of every coefficient (the Kalman filter's process noise):
+  // the standard deviation of its change over one minute, in its standard
+  // errors (over T minutes: drift_sigma_per_min * sqrt(T)). Larger follows
+  // a change faster and fits more noise; 0 freezes the fitted model.
+  double drift_sigma_per_min = 1.0;
   // Largest total change of a coefficient from its fitted value, in units
   // of its std_error from the model file.
   double bound_sigma = 3.0;
@@ -78,15 +87,18 @@ struct AdaptUpdate {
   double largest_sigma = 0.0; // largest |total change| / std_error
   std::string largest_name;   // the term with that change ("" when none)
   int clipped = 0;            // coefficients at +-bound_sigma
-  std::size_t samples_used = 0;  // samples that entered the RLS so far
+  std::size_t samples_used = 0;  // samples that entered the filter so far
+  double level_nT = 0.0;      // level carried over so far (added to the
+                              // model's interference_mean_nT)
 };
 
 struct AdaptSummary {
   std::size_t samples_seen = 0;
-  std::size_t samples_used = 0;  // entered the RLS
+  std::size_t samples_used = 0;  // entered the filter
   std::size_t updates = 0;
   std::size_t adapted_terms = 0;  // coefficients allowed to move
   double largest_sigma = 0.0;     // largest |change| / std_error ever applied
+  double level_nT = 0.0;          // level carried over (AdaptUpdate)
   // Final change of each coefficient in std errors (0 for fixed ones), and
   // the final coefficients (physical units), in the model's term order.
   std::vector<double> change_sigma;
@@ -116,13 +128,15 @@ class Adapter {
 
   const AdaptSummary& summary() const { return summary_; }
   // The log line of an update, without newline, e.g.
-  // "adapt t=1234.5 s: 3 moved, largest change 1.42 sigma (ind_xy), 0
-  // clipped, 812 samples".
+  // "adapt t=1234.500 s: 3 moved, largest change 1.42 sigma (ind_xy), 0
+  // clipped, 812 samples used, level -0.0031 nT".
   static std::string FormatUpdate(const AdaptUpdate& update);
 
  private:
   void Step(const double* u, double y);
-  void Update(models::Compensator& compensator, double time);
+  // row: the term row of the last observed sample (level continuity).
+  void Update(models::Compensator& compensator, double time,
+              const double* row);
 
   AdaptOptions options_;
   std::function<void(const AdaptUpdate&)> on_update_;
@@ -135,12 +149,15 @@ class Adapter {
   CausalBandPass filter_;            // channel 0: g, then adapted rows
   std::size_t interval_samples_ = 1;
   std::size_t warmup_samples_ = 0;
-  // Least-squares state, m = adapted_.size().
-  std::vector<double> z_;            // m, estimate at the last update
-  std::vector<double> p_;            // R, m x m information matrix
-  std::vector<double> pu_;           // r, m
+  // Kalman state, m = adapted_.size().
+  std::vector<double> z_;            // m, change since the fit (std errors)
+  std::vector<double> p_;            // m x m covariance of z, row-major
+  std::vector<double> pu_;           // m, P u (scratch)
   std::vector<double> applied_z_;    // m, at the last update
-  Eigen::LLT<Eigen::MatrixXd> llt_;  // sized once
+  double q_ = 0.0;                   // process noise a sample (std errors^2)
+  double r_ = 0.0;                   // measurement noise (nT^2)
+  double mean_ = 0.0;                // model's interference_mean_nT
+  std::vector<double> applied_theta_;  // coefficients in the compensator
   // Scratch (no allocation per sample).
   std::vector<double> in_, out_, u_, theta_;
   std::size_t since_update_ = 0;     // samples used since the last update

@@ -8,6 +8,7 @@
 #include <memory>
 #include <random>
 #include <sstream>
+#include <stdexcept>
 #include <string>
 #include <vector>
 
@@ -19,6 +20,8 @@
 #include "io/recording.h"
 #include "models/tolles_lawson.h"
 #include "src/core/apply.h"
+#include "src/core/fit.h"
+#include "src/core/fit_model.h"
 #include "src/core/butterworth.h"
 #include "src/core/stream.h"
 
@@ -307,25 +310,113 @@ TEST(AdaptiveTest, WithoutAdaptationTheOutputIsApplysBitForBit) {
   }
 }
 
-// Adaptation on a flight whose coefficients do not drift must stay near the
-// fit: the estimates wander only within the noise.
-TEST(AdaptiveTest, WithoutDriftTheCoefficientsStayNearTheFit) {
-  const std::vector<double> theta = FittedCoefficients();
-  const Flight flight = Simulate(600.0, theta, 0, 0.0);
-  const proto::CompensationModel model = TestModel(theta);
-  const io::Table fixed = ApplyInMemory(model, flight.table);
-  const AdaptedRun run = ApplyAdapted(model, flight.table, AdaptOptions());
-  const std::size_t from = flight.truth.size() / 2;
-  const double rms_fixed = BandErrorRms(fixed, flight.truth, from);
-  const double rms_adapted = BandErrorRms(run.out, flight.truth, from);
-  std::printf("no drift: fixed %.4f nT, adapted %.4f nT, largest change "
-              "%.2f sigma\n",
-              rms_fixed, rms_adapted, run.summary.largest_sigma);
-  // Adaptation fits some noise (16 unknowns on a 2000-sample memory) and
-  // moves the level of poorly excited combinations between updates: our
-  // acceptance is at most 30 % over the fixed model's residual (measured
-  // 0.0091 against 0.0076 nT).
-  EXPECT_LT(rms_adapted, 1.3 * rms_fixed);
+// The demo compensation box fitted (as `fluxtrim fit flights/demo_box.csv`)
+// and the demo validation box flown with the same aircraft afterwards, with
+// the simulation's truth (flights/truth): nothing drifts between them.
+struct Demo {
+  proto::CompensationModel model;
+  io::Table validation;
+  std::vector<double> ambient;  // f_ambient of the truth file, nT
+};
+
+const Demo& DemoData() {
+  static const Demo demo = [] {
+    const std::string dir = std::string(FLUXTRIM_SOURCE_DIR) + "/flights/";
+    Demo d;
+    const FitResult fit = FitModel(io::ReadRecording(dir + "demo_box.csv"));
+    if (!fit.usable) throw std::runtime_error("demo fit: " + fit.message);
+    d.model = ModelFromFit(fit, {});
+    d.validation = io::ReadRecording(dir + "demo_validation_box.csv");
+    d.ambient = io::ReadRecording(dir + "truth/demo_validation_box_truth.csv")
+                    .Column("f_ambient");
+    return d;
+  }();
+  return demo;
+}
+
+// A device switching on at time t_on: the permanent field changes by
+// `step` (nT, body axes), f += step . c with c = B/|B| from the fluxgate.
+io::Table WithPermanentStep(const io::Table& rec, double t_on,
+                            const double step[3]) {
+  io::Table out = rec;
+  const std::vector<double>& t = rec.Column("time");
+  std::vector<double>& f = out.Column("f");
+  for (std::size_t i = 0; i < t.size(); ++i) {
+    if (t[i] < t_on) continue;
+    const double b[3] = {rec.Column("bx")[i], rec.Column("by")[i],
+                         rec.Column("bz")[i]};
+    const double norm = std::sqrt(b[0] * b[0] + b[1] * b[1] + b[2] * b[2]);
+    f[i] += (step[0] * b[0] + step[1] * b[1] + step[2] * b[2]) / norm;
+  }
+  return out;
+}
+
+// On a stationary platform (no drift) adaptation must not degrade a
+// well-fitted model: the band-passed error against the truth stays within
+// 10 % of the fixed model's (our requirement; the first thing an operator
+// tests). Before the level was carried over across updates it was 6.6
+// times the fixed model's (0.0132 against 0.0020 nT, measured).
+TEST(AdaptiveTest, WithoutDriftTheDemoValidationBoxIsNotDegraded) {
+  const Demo& demo = DemoData();
+  const io::Table fixed = ApplyInMemory(demo.model, demo.validation);
+  const AdaptedRun run = ApplyAdapted(demo.model, demo.validation, AdaptOptions());
+  const double rms_fixed = BandErrorRms(fixed, demo.ambient, 0);
+  const double rms_adapted = BandErrorRms(run.out, demo.ambient, 0);
+  std::printf("demo validation box, no drift: fixed %.5f nT, adapted %.5f nT, "
+              "largest change %.2f sigma, %zu updates\n",
+              rms_fixed, rms_adapted, run.summary.largest_sigma,
+              run.summary.updates);
+  ASSERT_GT(run.summary.updates, 300u);  // it did adapt
+  EXPECT_LT(rms_adapted, 1.10 * rms_fixed);
+}
+
+// The permanent field changes 100 s into the validation box (a device
+// switched on) by a few standard errors, inside the default bound: from
+// 50 s after the switch on, adaptation must at least halve the fixed
+// model's band-passed error (our requirement).
+TEST(AdaptiveTest, AdaptationFollowsAPermanentStepWithinTheBound) {
+  const Demo& demo = DemoData();
+  const double t_on = demo.validation.Column("time").front() + 100.0;
+  const double step[3] = {0.08, -0.05, 0.4};  // nT: 2.4, 2.6, 1.4 sigma
+  const io::Table rec = WithPermanentStep(demo.validation, t_on, step);
+  const io::Table fixed = ApplyInMemory(demo.model, rec);
+  const AdaptedRun run = ApplyAdapted(demo.model, rec, AdaptOptions());
+  const std::size_t from = 1500;  // t_on + 50 s at 10 Hz
+  const double rms_fixed = BandErrorRms(fixed, demo.ambient, from);
+  const double rms_adapted = BandErrorRms(run.out, demo.ambient, from);
+  const double rms_before = BandErrorRms(ApplyInMemory(demo.model, demo.validation),
+                                         demo.ambient, from);
+  std::printf("permanent step (0.08, -0.05, 0.4) nT: fixed %.5f nT, adapted "
+              "%.5f nT (no step %.5f)\n",
+              rms_fixed, rms_adapted, rms_before);
+  ASSERT_GT(rms_fixed, 2.0 * rms_before);  // the step matters
+  EXPECT_LT(rms_adapted, 0.5 * rms_fixed);
+}
+
+// A device of a few nT is 60-80 standard errors of perm_x and perm_y: the
+// default bound (3 sigma) stops the adaptation there and the log says so
+// (clipped); with the bound raised to 100 sigma it follows, at least
+// halving the error again (our requirement).
+TEST(AdaptiveTest, ALargePermanentStepIsClippedUnlessTheBoundAllowsIt) {
+  const Demo& demo = DemoData();
+  const double t_on = demo.validation.Column("time").front() + 100.0;
+  const double step[3] = {2.0, -1.5, 3.0};  // nT
+  const io::Table rec = WithPermanentStep(demo.validation, t_on, step);
+  const io::Table fixed = ApplyInMemory(demo.model, rec);
+  const AdaptedRun bounded = ApplyAdapted(demo.model, rec, AdaptOptions());
+  AdaptOptions wide;
+  wide.bound_sigma = 100.0;
+  const AdaptedRun followed = ApplyAdapted(demo.model, rec, wide);
+  const std::size_t from = 1500;  // t_on + 50 s at 10 Hz
+  const double rms_fixed = BandErrorRms(fixed, demo.ambient, from);
+  const double rms_bounded = BandErrorRms(bounded.out, demo.ambient, from);
+  const double rms_followed = BandErrorRms(followed.out, demo.ambient, from);
+  std::printf("permanent step (2, -1.5, 3) nT: fixed %.5f nT, adapted %.5f nT "
+              "(bound 3 sigma), %.5f nT (bound 100 sigma)\n",
+              rms_fixed, rms_bounded, rms_followed);
+  EXPECT_GT(bounded.updates.back().clipped, 0);
+  EXPECT_LT(rms_followed, 0.5 * rms_fixed);
+  EXPECT_LT(rms_followed, 0.5 * rms_bounded);
 }
 
 TEST(AdaptiveTest, RefusesAModelWithoutResidualSigmaOrStandardErrors) {
@@ -337,7 +428,7 @@ TEST(AdaptiveTest, RefusesAModelWithoutResidualSigmaOrStandardErrors) {
   for (proto::Coefficient& c : *model.mutable_coefficients()) c.set_std_error(0);
   EXPECT_THROW(Adapter(model, AdaptOptions(), "m.txt", {}), io::InputError);
   AdaptOptions bad;
-  bad.forgetting = 1.5;
+  bad.drift_sigma_per_min = -1.0;
   std::string why;
   EXPECT_FALSE(bad.IsValid(&why));
   EXPECT_THROW(Adapter(TestModel(theta), bad, "m.txt", {}),
