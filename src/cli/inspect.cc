@@ -1,4 +1,6 @@
 // fluxtrim inspect REC: what a recording holds before anything is fitted.
+#include "src/core/inspect.h"
+
 #include <iostream>
 #include <sstream>
 #include <stdexcept>
@@ -6,7 +8,6 @@
 #include "models/wmm.h"
 #include "src/cli/commands.h"
 #include "src/cli/common.h"
-#include "src/core/inspect.h"
 
 namespace fluxtrim::cli {
 namespace {
@@ -64,8 +65,8 @@ int RunInspect(const InspectArgs& args) {
   options.excitation.terms.aux = SplitComma(args.aux);
   for (const std::string& name : options.excitation.terms.aux) {
     if (!table.Has(name)) {
-      throw CLI::ValidationError("--aux", "no channel '" + name + "' in " +
-                                              args.recording);
+      throw CLI::ValidationError(
+          "--aux", "no channel '" + name + "' in " + args.recording);
     }
   }
   if (!args.band.empty()) {

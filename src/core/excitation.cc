@@ -1,13 +1,12 @@
 #include "src/core/excitation.h"
 
+#include <Eigen/Core>
+#include <Eigen/SVD>
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <memory>
 #include <stdexcept>
-
-#include <Eigen/Core>
-#include <Eigen/SVD>
 
 #include "io/error.h"
 #include "src/core/fit.h"
@@ -62,7 +61,8 @@ std::vector<double> GroupSingularValues(const Eigen::MatrixXd& a,
   // The singular values of A equal those of its R factor (A = Q R).
   const CompressedSystem s = Compress(g, Eigen::VectorXd::Zero(g.rows()));
   const Eigen::JacobiSVD<Eigen::MatrixXd> svd(s.r);
-  const double root_n = std::sqrt(static_cast<double>(std::max<long>(1, a.rows())));
+  const double root_n =
+      std::sqrt(static_cast<double>(std::max<long>(1, a.rows())));
   std::vector<double> out;
   for (long i = 0; i < svd.singularValues().size(); ++i) {
     out.push_back(svd.singularValues()(i) / root_n);
@@ -136,7 +136,8 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
   const double* f = nullptr;
   if (table.Has("f")) {
     const auto& fc = table.Column("f");
-    if (std::any_of(fc.begin(), fc.end(), [](double v) { return std::isfinite(v); })) {
+    if (std::any_of(fc.begin(), fc.end(),
+                    [](double v) { return std::isfinite(v); })) {
       f = fc.data();
     }
   }
@@ -172,7 +173,8 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
   std::vector<double> field(n), good_time(n), good_field(n);
   for (std::size_t i = 0; i < n; ++i) {
     field[i] = f ? f[i] : tm.bt[i];
-    bool ok = !(tm.flags[i] & models::kFlagBadSample) && std::isfinite(field[i]);
+    bool ok =
+        !(tm.flags[i] & models::kFlagBadSample) && std::isfinite(field[i]);
     for (const double* a : aux) ok = ok && std::isfinite(a[i]);
     good_time[i] = ok ? time[i] : kNaN;
     good_field[i] = ok ? field[i] : kNaN;
@@ -218,7 +220,8 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
     for (const Run& run : runs) {
       x.resize(run.end - run.begin);
       y.resize(x.size());
-      for (std::size_t i = run.begin; i < run.end; ++i) x[i - run.begin] = value_at(i);
+      for (std::size_t i = run.begin; i < run.end; ++i)
+        x[i - run.begin] = value_at(i);
       band.Filter(x.data(), x.size(), y.data());
       for (std::size_t i = run.fit_begin; i < run.fit_end; ++i) {
         out_rows[row++ * stride] = y[i - run.begin];
@@ -240,7 +243,8 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
   double noise_gain = 1.0;
   {
     const std::size_t len = std::max<std::size_t>(
-        band.min_length() + 1, static_cast<std::size_t>(40.0 * rate / band.low_hz()));
+        band.min_length() + 1,
+        static_cast<std::size_t>(40.0 * rate / band.low_hz()));
     std::vector<double> impulse(len, 0.0);
     impulse[len / 2] = 1.0;
     double s = 0;
@@ -267,8 +271,9 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
       t.plausible_bound = kMaxEddyS;
     } else {
       const std::size_t c = (j - (p - 3 * aux.size())) / 3;
-      t.plausible_bound = aux_rms[c] > 0 ? kMaxPermanentNT / aux_rms[c]
-                                         : std::numeric_limits<double>::infinity();
+      t.plausible_bound = aux_rms[c] > 0
+                              ? kMaxPermanentNT / aux_rms[c]
+                              : std::numeric_limits<double>::infinity();
     }
     const long jj = static_cast<long>(j);
     t.band_rms = a.col(jj).norm() / root_n;
@@ -279,7 +284,8 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
       }
     }
     raw = std::sqrt(raw / static_cast<double>(rows));
-    if (!(t.band_rms > 1e-12 * std::max(1.0, raw)) || !std::isfinite(t.band_rms)) {
+    if (!(t.band_rms > 1e-12 * std::max(1.0, raw)) ||
+        !std::isfinite(t.band_rms)) {
       held[j] = true;
       reason[j] = "no variation in the band (not excited)";
       scale(jj) = 1.0;
@@ -291,8 +297,9 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
   // ---- singular values per group --------------------------------------------
   for (std::size_t j = 0; j < p; ++j) {
     const std::string& g = result.terms[j].group;
-    auto it = std::find_if(result.groups.begin(), result.groups.end(),
-                           [&](const GroupExcitation& e) { return e.group == g; });
+    auto it =
+        std::find_if(result.groups.begin(), result.groups.end(),
+                     [&](const GroupExcitation& e) { return e.group == g; });
     if (it == result.groups.end()) {
       GroupExcitation e;
       e.group = g;
@@ -304,7 +311,8 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
         e.column_unit = "nT/s";
       } else {
         const io::ChannelInfo& info =
-            table.channel(static_cast<std::size_t>(table.Find(g.substr(4)))).info;
+            table.channel(static_cast<std::size_t>(table.Find(g.substr(4))))
+                .info;
         e.column_unit = info.unit.empty() ? "channel unit" : info.unit;
       }
       result.groups.push_back(e);
@@ -325,7 +333,8 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
   {
     std::vector<std::size_t> fit_rows;
     for (const Run& run : runs) {
-      for (std::size_t i = run.fit_begin; i < run.fit_end; ++i) fit_rows.push_back(i);
+      for (std::size_t i = run.fit_begin; i < run.fit_end; ++i)
+        fit_rows.push_back(i);
     }
     const std::size_t stride = std::max<std::size_t>(
         1, (rows + options.max_shape_rows - 1) / options.max_shape_rows);
@@ -335,13 +344,15 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
       const std::size_t i = fit_rows[static_cast<std::size_t>(r) * stride];
       for (std::size_t j = 0; j < p; ++j) {
         double v = tm.values[i * p + j];
-        if (StartsWith(names[j], "ind_") || StartsWith(names[j], "eddy_")) v /= tm.bt[i];
+        if (StartsWith(names[j], "ind_") || StartsWith(names[j], "eddy_"))
+          v /= tm.bt[i];
         shapes(r, static_cast<long>(j)) = v;
       }
     }
     for (long j = 0; j < np; ++j) {
       shapes.col(j).array() -= shapes.col(j).mean();
-      const double rms = shapes.col(j).norm() / std::sqrt(static_cast<double>(m));
+      const double rms =
+          shapes.col(j).norm() / std::sqrt(static_cast<double>(m));
       if (rms > 0 && std::isfinite(rms)) {
         shapes.col(j) /= rms;
       } else {
@@ -378,7 +389,8 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
     for (long i = 0; i < q; ++i) {
       if (v(i) >= 0.5 * vmax) pick = i;
     }
-    const std::size_t j = static_cast<std::size_t>(free[static_cast<std::size_t>(pick)]);
+    const std::size_t j =
+        static_cast<std::size_t>(free[static_cast<std::size_t>(pick)]);
     held[j] = true;
     reason[j] = std::string(what) + " (relative singular value " +
                 Sci(svd.singular_values(q - 1) / s0) + ")";
@@ -391,7 +403,8 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
                             "not excited independently of the other terms")) {
       continue;
     }
-    if (hold_null_direction(system, kNullSingularValue, "no independent excitation")) {
+    if (hold_null_direction(system, kNullSingularValue,
+                            "no independent excitation")) {
       continue;
     }
     const std::vector<int> free = FreeColumns(held);
@@ -399,7 +412,8 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
     const long q = sub.r.cols();
     const Eigen::VectorXd x = sub.r.triangularView<Eigen::Upper>().solve(sub.z);
     const double band_sigma =
-        std::sqrt(sub.outside_sum_squares / std::max(1.0, n_rows - static_cast<double>(q)));
+        std::sqrt(sub.outside_sum_squares /
+                  std::max(1.0, n_rows - static_cast<double>(q)));
     result.residual_rms_nT = std::sqrt(sub.outside_sum_squares / n_rows);
     const double sigma2 = band_sigma * band_sigma / noise_gain;
     Eigen::MatrixXd rinv = Eigen::MatrixXd::Identity(q, q);
@@ -408,7 +422,8 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
     long worst_j = -1;
     std::string worst_note;
     for (long i = 0; i < q; ++i) {
-      const std::size_t j = static_cast<std::size_t>(free[static_cast<std::size_t>(i)]);
+      const std::size_t j =
+          static_cast<std::size_t>(free[static_cast<std::size_t>(i)]);
       TermExcitation& t = result.terms[j];
       const double sc = scale(static_cast<long>(j));
       const double row_norm = rinv.row(i).norm();

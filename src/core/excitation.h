@@ -51,8 +51,8 @@ struct ExcitationOptions {
   models::TermOptions terms;  // default: the 16-term set
   // Derivative half-width k (samples); 0 = round(0.2 s * rate), at least 1.
   int derivative_half_width = 0;
-  BandPassOptions band;        // 4th order, 0.1-0.9 Hz, as the fit
-  double gap_factor = 1.5;     // step > gap_factor / rate is a gap
+  BandPassOptions band;     // 4th order, 0.1-0.9 Hz, as the fit
+  double gap_factor = 1.5;  // step > gap_factor / rate is a gap
   // Samples dropped at each end of a filtered run (s); 0 = 0.5 / low_hz.
   double edge_trim_s = 0.0;
   // Thresholds of fit.cc (kShapeNullSingularValue, kUndeterminedFraction).
@@ -68,8 +68,8 @@ struct ExcitationOptions {
 
 struct TermExcitation {
   std::string name;
-  std::string group;   // permanent, induced, eddy, aux_<col>
-  std::string unit;    // of the coefficient: nT, 1, s, nT/unit
+  std::string group;  // permanent, induced, eddy, aux_<col>
+  std::string unit;   // of the coefficient: nT, 1, s, nT/unit
   // RMS of the band-passed column (column units, see step 2).
   double band_rms = 0;
   // RMS of the part of the band-passed column that the other free terms
@@ -80,14 +80,14 @@ struct TermExcitation {
   double std_error = std::numeric_limits<double>::quiet_NaN();
   double plausible_bound = 0;  // coefficient units
   bool determined = true;
-  std::string reason;          // why not determined
+  std::string reason;  // why not determined
 };
 
 struct GroupExcitation {
   std::string group;
-  std::string column_unit;               // "1", "nT", "nT/s", aux unit
+  std::string column_unit;  // "1", "nT", "nT/s", aux unit
   std::vector<std::string> terms;
-  std::vector<double> singular_values;   // RMS, descending
+  std::vector<double> singular_values;  // RMS, descending
   std::vector<std::string> undetermined_terms;
 };
 
@@ -99,10 +99,10 @@ struct ExcitationSummary {
   std::string message;
   double sample_rate_hz = 0;
   int derivative_half_width = 0;
-  std::size_t rows = 0;           // band-passed samples analysed
-  std::string field_source;       // "f" or "|B|"
+  std::size_t rows = 0;      // band-passed samples analysed
+  std::string field_source;  // "f" or "|B|"
   double residual_rms_nT = std::numeric_limits<double>::quiet_NaN();
-  std::vector<TermExcitation> terms;   // TermNames order
+  std::vector<TermExcitation> terms;  // TermNames order
   std::vector<GroupExcitation> groups;
 
   std::vector<std::string> UndeterminedTerms() const;

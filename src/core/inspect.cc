@@ -77,18 +77,21 @@ void AddManeuversAndExcitation(const io::Table& recording,
       out->set_start_s(m.start_s);
       out->set_end_s(m.end_s);
     }
-    for (const std::string& note : detection.notes) summary->add_maneuver_notes(note);
+    for (const std::string& note : detection.notes)
+      summary->add_maneuver_notes(note);
     if (detection.maneuvers.empty()) {
       summary->add_warnings(
           "no pitch, roll or yaw maneuvers found (source: " + detection.source +
           "): fit needs a compensation box or --segments FILE");
     } else if (detection.maneuvers.size() < 12) {
-      summary->add_warnings("found " + std::to_string(detection.maneuvers.size()) +
+      summary->add_warnings("found " +
+                            std::to_string(detection.maneuvers.size()) +
                             " of the 12 maneuvers of a full box (pitch, roll, "
                             "yaw at four headings)");
     }
   } catch (const std::invalid_argument& e) {
-    summary->add_maneuver_notes(std::string("maneuver detection skipped: ") + e.what());
+    summary->add_maneuver_notes(std::string("maneuver detection skipped: ") +
+                                e.what());
   }
 
   ExcitationOptions excitation = options.excitation;
@@ -98,10 +101,12 @@ void AddManeuversAndExcitation(const io::Table& recording,
   try {
     ex = AnalyseExcitation(recording, excitation);
   } catch (const std::invalid_argument& e) {
-    summary->set_excitation_note(std::string("excitation check skipped: ") + e.what());
+    summary->set_excitation_note(std::string("excitation check skipped: ") +
+                                 e.what());
     return;
   } catch (const io::InputError& e) {
-    summary->set_excitation_note(std::string("excitation check skipped: ") + e.what());
+    summary->set_excitation_note(std::string("excitation check skipped: ") +
+                                 e.what());
     return;
   }
   summary->set_field_source(ex.field_source);
@@ -123,7 +128,8 @@ void AddManeuversAndExcitation(const io::Table& recording,
     out->set_group(g.group);
     out->set_column_unit(g.column_unit);
     for (double v : g.singular_values) out->add_singular_values(v);
-    for (const std::string& t : g.undetermined_terms) out->add_undetermined_terms(t);
+    for (const std::string& t : g.undetermined_terms)
+      out->add_undetermined_terms(t);
     for (const TermExcitation& t : ex.terms) {
       if (t.group != g.group) continue;
       proto::TermExcitation* term = out->add_terms();
@@ -140,7 +146,8 @@ void AddManeuversAndExcitation(const io::Table& recording,
   const std::vector<std::string> undetermined = ex.UndeterminedTerms();
   if (!undetermined.empty()) {
     std::string list;
-    for (const std::string& t : undetermined) list += (list.empty() ? "" : ", ") + t;
+    for (const std::string& t : undetermined)
+      list += (list.empty() ? "" : ", ") + t;
     summary->add_warnings(std::to_string(undetermined.size()) +
                           " term(s) not determined by this recording: " + list +
                           "; a fit holds them at 0 (fly pitch, roll and yaw at "
@@ -269,9 +276,8 @@ proto::InspectSummary Inspect(const io::Table& recording,
       wmm->set_lon_deg(Median(lon));
       wmm->set_alt_m(Median(alt));
       const models::MagneticModel& model = models::MagneticModel::Wmm2025();
-      const models::GeomagneticField field =
-          model.Field(wmm->lat_deg(), wmm->lon_deg(), wmm->alt_m(),
-                      options.decimal_year);
+      const models::GeomagneticField field = model.Field(
+          wmm->lat_deg(), wmm->lon_deg(), wmm->alt_m(), options.decimal_year);
       wmm->set_wmm_f_nt(field.f_nT);
       wmm->set_wmm_incl_deg(field.incl_deg);
       const std::vector<double>& measured =
@@ -298,11 +304,13 @@ proto::InspectSummary Inspect(const io::Table& recording,
         }
       }
       if (!model.IsValidDate(options.decimal_year)) {
-        summary.add_warnings("date is outside the WMM2025 validity 2025.0-2030.0");
+        summary.add_warnings(
+            "date is outside the WMM2025 validity 2025.0-2030.0");
       }
     }
   }
-  if (options.maneuvers && has_fluxgate) AddManeuversAndExcitation(recording, file, options, &summary);
+  if (options.maneuvers && has_fluxgate)
+    AddManeuversAndExcitation(recording, file, options, &summary);
   return summary;
 }
 
@@ -361,7 +369,8 @@ std::string FormatInspectSummary(const proto::InspectSummary& s) {
       out << line;
     }
   }
-  for (const std::string& note : s.maneuver_notes()) out << "  note: " << note << "\n";
+  for (const std::string& note : s.maneuver_notes())
+    out << "  note: " << note << "\n";
   if (s.excitation_size() > 0) {
     std::snprintf(line, sizeof line,
                   "Excitation (terms %s, field %s, band %.3g-%.3g Hz, %u "

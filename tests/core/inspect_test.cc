@@ -5,6 +5,7 @@
 
 #include "src/core/inspect.h"
 
+#include <gtest/gtest.h>
 #include <sys/wait.h>
 
 #include <cmath>
@@ -14,8 +15,6 @@
 #include <sstream>
 #include <string>
 #include <vector>
-
-#include <gtest/gtest.h>
 
 #include "io/recording.h"
 #include "src/core/excitation.h"
@@ -84,7 +83,8 @@ TEST(Inspect, ReportsTheTwelveManeuversOfTheBoxWithTheirKindsAndHeadings) {
   }
   // The text report shows them.
   const std::string text = FormatInspectSummary(s);
-  EXPECT_NE(text.find("Maneuvers (12, from attitude)"), std::string::npos) << text;
+  EXPECT_NE(text.find("Maneuvers (12, from attitude)"), std::string::npos)
+      << text;
 }
 
 TEST(Inspect, ExcitationListsEveryTermGroupWithOneSingularValuePerColumn) {
@@ -138,7 +138,8 @@ TEST(Inspect, SingularValuesOfEachGroupCarryTheEnergyOfItsColumns) {
 TEST(Inspect, FullTermSetNamesTheTwoTermsTheIdentitiesMakeRedundant) {
   InspectOptions options;
   options.excitation.terms = models::ParseTermSet("full");
-  const proto::InspectSummary s = Inspect(DemoBox().recording, "demo_box", options);
+  const proto::InspectSummary s =
+      Inspect(DemoBox().recording, "demo_box", options);
   std::set<std::string> undetermined;
   for (const proto::GroupExcitation& g : s.excitation()) {
     for (const std::string& t : g.undetermined_terms()) undetermined.insert(t);
@@ -175,7 +176,8 @@ TEST(Inspect, VehicleLoopNamesTheTermsItCannotDetermine) {
   EXPECT_LT(undetermined.size(), 16u) << "the loop still determines some terms";
   bool warned = false;
   for (const std::string& w : s.warnings()) {
-    warned = warned || w.find("not determined by this recording") != std::string::npos;
+    warned = warned ||
+             w.find("not determined by this recording") != std::string::npos;
   }
   EXPECT_TRUE(warned);
   const std::string text = FormatInspectSummary(s);
@@ -229,7 +231,8 @@ Result Exec(const std::string& args) {
 
 TEST(InspectCli, JsonHoldsManeuversAndExcitation) {
   const char* tmp = std::getenv("TEST_TMPDIR");
-  const std::string json = std::string(tmp ? tmp : "/tmp") + "/inspect_box.json";
+  const std::string json =
+      std::string(tmp ? tmp : "/tmp") + "/inspect_box.json";
   const Result run =
       Exec("inspect " + kSource + "/flights/demo_box.csv --json " + json);
   ASSERT_EQ(run.code, 0) << run.output;
@@ -251,7 +254,8 @@ TEST(InspectCli, TermAndAuxOptionsAreChecked) {
   EXPECT_EQ(Exec("inspect " + rec + " --band 0.9,0.1").code, 2);
   const Result run = Exec("inspect " + rec + " --aux i_alternator");
   ASSERT_EQ(run.code, 0) << run.output;
-  EXPECT_NE(run.output.find("aux_i_alternator"), std::string::npos) << run.output;
+  EXPECT_NE(run.output.find("aux_i_alternator"), std::string::npos)
+      << run.output;
 }
 
 }  // namespace
