@@ -3,10 +3,13 @@
 #include <sys/wait.h>
 #include <unistd.h>
 
+#include <cmath>
 #include <cstdio>
+#include <cstdlib>
 #include <fstream>
 #include <sstream>
 #include <string>
+#include <vector>
 
 #include <google/protobuf/util/json_util.h>
 #include <gtest/gtest.h>
@@ -166,6 +169,169 @@ TEST_F(FitCli, BadInputAndUnfittableFlightsExitOne) {
   const Result aux = Exec("fit " + *dir_ + "/box.csv -o " + *dir_ + "/x.ftmodel --aux i_motor");
   EXPECT_EQ(aux.code, 1) << aux.output;
   EXPECT_NE(aux.output.find("i_motor"), std::string::npos) << aux.output;
+}
+
+
+// --- Sensor calibration in the fit (issue 6, "Using it") -------------------
+
+// Column `name` of a CSV written by fluxtrim (lines starting with '#' are
+// comments; the first other line is the header).
+std::vector<double> CsvColumn(const std::string& path, const std::string& name) {
+  std::ifstream in(path);
+  std::string line;
+  int col = -1;
+  std::vector<double> values;
+  while (std::getline(in, line)) {
+    if (line.empty() || line[0] == '#') continue;
+    std::vector<std::string> cells;
+    std::stringstream cells_in(line);
+    std::string cell;
+    while (std::getline(cells_in, cell, ',')) cells.push_back(cell);
+    if (col < 0) {
+      for (std::size_t i = 0; i < cells.size(); ++i) {
+        if (cells[i] == name) col = static_cast<int>(i);
+      }
+      if (col < 0) return values;
+      continue;
+    }
+    const std::size_t c = static_cast<std::size_t>(col);
+    values.push_back(c < cells.size() && !cells[c].empty()
+                         ? std::strtod(cells[c].c_str(), nullptr)
+                         : std::nan(""));
+  }
+  return values;
+}
+
+// The drone integrator's path on the demo data (flights/README.md):
+// calibrate the fluxgate on the rotation flight (no scalar sensor, WMM2025
+// reference, motor current as aux), fit the compensation on the calibrated
+// fluxgate magnitude with the rotations as segments, apply to the survey
+// grid. The rotation flight has no pitch/roll/yaw maneuvers, so `fit`
+// without --segments refuses and points at calibrate and --segments.
+TEST_F(FitCli, FluxgateOnlyDroneIsCalibratedFittedAndAppliedWithTheSensor) {
+  const std::string flights = std::string(FLUXTRIM_SOURCE_DIR) + "/flights/";
+  const std::string sensor = *dir_ + "/drone.sensor";
+  const Result cal = Exec("calibrate " + flights + "demo_drone_cal.csv -o " +
+                          sensor + " --date 2025-06-16 --aux i_motor");
+  ASSERT_EQ(cal.code, 0) << cal.output;
+
+  const std::string model = *dir_ + "/drone.ftmodel";
+  const Result refused = Exec("fit " + flights + "demo_drone_cal.csv -o " +
+                              model + " --sensor " + sensor + " --aux i_motor");
+  EXPECT_EQ(refused.code, 1) << refused.output;
+  EXPECT_NE(refused.output.find("calibrate"), std::string::npos) << refused.output;
+  EXPECT_NE(refused.output.find("--segments"), std::string::npos) << refused.output;
+
+  // Rotation times from the simulator's truth (maneuver_kind 4), given as
+  // yaw segments: a full turn is a yaw maneuver.
+  const std::string truth = flights + "truth/demo_drone_cal_truth.csv";
+  const std::vector<double> t = CsvColumn(truth, "time");
+  const std::vector<double> kind = CsvColumn(truth, "maneuver_kind");
+  ASSERT_EQ(t.size(), kind.size());
+  ASSERT_FALSE(t.empty());
+  const std::string segments = *dir_ + "/rotations.csv";
+  {
+    std::ofstream seg(segments);
+    seg.precision(10);
+    seg << "start_s,end_s,heading_deg,kind\n";
+    for (std::size_t i = 0; i < t.size();) {
+      if (kind[i] != 4) {
+        ++i;
+        continue;
+      }
+      std::size_t j = i;
+      while (j + 1 < t.size() && kind[j + 1] == 4) ++j;
+      seg << t[i] << "," << t[j] << ",0,yaw\n";
+      i = j + 1;
+    }
+  }
+  const std::string json = *dir_ + "/drone_fit.json";
+  const Result without = Exec("fit " + flights + "demo_drone_cal.csv -o " +
+                              *dir_ + "/drone_noaux.ftmodel --sensor " + sensor +
+                              " --segments " + segments);
+  ASSERT_EQ(without.code, 0) << without.output;
+  const Result fit = Exec("fit " + flights + "demo_drone_cal.csv -o " + model +
+                          " --sensor " + sensor + " --aux i_motor --segments " +
+                          segments + " --summary-json " + json);
+  ASSERT_EQ(fit.code, 0) << fit.output;
+  EXPECT_NE(fit.output.find("field from |B|"), std::string::npos) << fit.output;
+  const proto::CompensationModel m = io::ReadModelFile(model);
+  ASSERT_TRUE(m.has_sensor());
+  EXPECT_EQ(m.inputs().field_source(), "|B|");
+  const proto::CompensationModel m0 = io::ReadModelFile(*dir_ + "/drone_noaux.ftmodel");
+  // On this flight (fluxgate noise 0.2 nT) the current term takes the FOM
+  // from about 10 nT to 2.5 nT; at least 3x (our choice, below the measured
+  // 4.1x; the 5x acceptance is in tests/core/joint_fit_test.cc).
+  EXPECT_GT(m0.quality().fom_after_nt(), 3.0 * m.quality().fom_after_nt());
+  const std::string j = ReadFile(json);
+  EXPECT_NE(j.find("\"sensor_source\": \"file\""), std::string::npos) << j;
+  EXPECT_NE(j.find("\"sensor\": {"), std::string::npos) << j;
+  google::protobuf::util::JsonParseOptions po;
+  po.ignore_unknown_fields = true;
+  proto::FitSummary parsed;
+  EXPECT_TRUE(google::protobuf::util::JsonStringToMessage(j, &parsed, po).ok());
+
+  // Apply to the survey grid (ASEG-GDF2) and compare with the simulator's
+  // ambient field: the compensated fluxgate magnitude holds the ambient
+  // field plus the fluxgate noise (0.2 nT per axis); 1.5x that noise as in
+  // the calibrate acceptance of issue 6. A constant offset (hard iron left
+  // in the WMM-referenced calibration) is removed first.
+  const std::string out = *dir_ + "/grid_out.csv";
+  const Result apply = Exec("apply " + model + " " + flights +
+                            "demo_drone_grid.dfn -o " + out);
+  ASSERT_EQ(apply.code, 0) << apply.output;
+  const std::vector<double> f_comp = CsvColumn(out, "f_comp");
+  const std::vector<double> ambient =
+      CsvColumn(flights + "truth/demo_drone_grid_truth.csv", "f_ambient");
+  ASSERT_EQ(f_comp.size(), ambient.size());
+  double sum = 0, sum2 = 0;
+  std::size_t n = 0;
+  for (std::size_t i = 0; i < f_comp.size(); ++i) {
+    if (!std::isfinite(f_comp[i])) continue;
+    const double d = f_comp[i] - ambient[i];
+    sum += d;
+    sum2 += d * d;
+    ++n;
+  }
+  ASSERT_GT(n, f_comp.size() / 2);
+  const double mean = sum / static_cast<double>(n);
+  const double sd = std::sqrt(sum2 / static_cast<double>(n) - mean * mean);
+  EXPECT_LT(sd, 1.5 * 0.2) << "f_comp - f_ambient standard deviation";
+}
+
+TEST_F(FitCli, JointSensorFitNeedsAScalarSensorAndWritesTheCalibration) {
+  const std::string flights = std::string(FLUXTRIM_SOURCE_DIR) + "/flights/";
+  const Result drone = Exec("fit " + flights + "demo_drone_cal.csv -o " +
+                            *dir_ + "/j.ftmodel --joint-sensor");
+  EXPECT_EQ(drone.code, 1) << drone.output;
+  EXPECT_NE(drone.output.find("scalar sensor"), std::string::npos) << drone.output;
+  EXPECT_EQ(Exec("fit " + *dir_ + "/box.csv -o " + *dir_ +
+                 "/j.ftmodel --joint-sensor --sensor x.sensor")
+                .code,
+            2);
+
+  // The demo box's fluxgate has gains 1.0008/0.9993/1.0004 and offsets
+  // 3.2/-2.1/1.4 nT (flights/demo_box.scenario).
+  const std::string model = *dir_ + "/joint.ftmodel";
+  const std::string sensor = *dir_ + "/joint.sensor";
+  const Result joint = Exec("fit " + flights + "demo_box.csv -o " + model +
+                            " --joint-sensor --sensor-output " + sensor);
+  ASSERT_EQ(joint.code, 0) << joint.output;
+  EXPECT_NE(joint.output.find("joint sensor calibration"), std::string::npos);
+  const proto::CompensationModel m = io::ReadModelFile(model);
+  ASSERT_TRUE(m.has_sensor());
+  EXPECT_EQ(m.sensor().mode(), "joint");
+  // 5e-5: a tenth of the issue's 0.05 % gain tolerance (our choice; the
+  // level box turns the field through x and y far more than through z).
+  EXPECT_NEAR(m.sensor().gains().x(), 1.0008, 5e-5);
+  EXPECT_NEAR(m.sensor().gains().y(), 0.9993, 5e-5);
+  EXPECT_NEAR(m.sensor().gains().z(), 1.0004, 5e-5);
+  // Offsets within 1 nT (issue 6's calibration acceptance).
+  EXPECT_NEAR(m.sensor().offsets_nt().x(), 3.2, 1.0);
+  EXPECT_NEAR(m.sensor().offsets_nt().y(), -2.1, 1.0);
+  EXPECT_NEAR(m.sensor().offsets_nt().z(), 1.4, 1.0);
+  std::ifstream written(sensor);
+  EXPECT_TRUE(written.good());
 }
 
 }  // namespace
