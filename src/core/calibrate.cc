@@ -188,7 +188,10 @@ class ChunkCost : public ceres::CostFunction {
                    double* jacobian) const {
     using J = ceres::Jet<double, N>;
     const int p = layout_.size();
-    J xj[N];
+    // Sized for the largest layout (36, see above) whatever N: the
+    // compiler cannot see that EvaluateJet<N> only runs when p <= N, and
+    // the unused tail stays zero.
+    J xj[36];
     for (int i = 0; i < p; ++i) xj[i] = J(x[i], i);
     ModelCoefficients<J> c;
     PrepareCoefficients(layout_, xj, &c);
