@@ -124,6 +124,14 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
   }
   ExcitationSummary result;
   const std::size_t n = table.rows();
+  if (options.max_samples > 0 && n > options.max_samples) {
+    result.message = "recording has " + std::to_string(n) +
+                     " samples, more than the " +
+                     std::to_string(options.max_samples) +
+                     " the excitation check holds in memory: cut out the "
+                     "compensation flight";
+    return result;
+  }
   const std::vector<double>& time = table.Column(table.time_channel());
   const double rate = EstimateSampleRate(time, options.source);
   const int k = options.derivative_half_width > 0
@@ -363,15 +371,15 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
   const CompressedSystem shape_system =
       Compress(shapes, Eigen::VectorXd::Zero(shapes.rows()));
 
-  Eigen::MatrixXd a_eq = a;
+  // Equilibrated in place (the group singular values above are done).
   for (long j = 0; j < np; ++j) {
     if (held[static_cast<std::size_t>(j)]) {
-      a_eq.col(j).setZero();
+      a.col(j).setZero();
     } else {
-      a_eq.col(j) /= scale(j);
+      a.col(j) /= scale(j);
     }
   }
-  const CompressedSystem system = Compress(a_eq, y);
+  const CompressedSystem system = Compress(a, y);
 
   // ---- determination, one term at a time -------------------------------
   auto hold_null_direction = [&](const CompressedSystem& s, double threshold,

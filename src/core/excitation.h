@@ -61,6 +61,10 @@ struct ExcitationOptions {
   // Row subsampling of the shape analysis (it only looks for exact
   // dependences, so every sample is not needed).
   std::size_t max_shape_rows = 20000;
+  // Longer recordings are not analysed (usable = false, message says so):
+  // the check holds the term matrix twice (2 x 8 x terms bytes per sample,
+  // 512 MB for 2 M samples of 16 terms). 0: no limit.
+  std::size_t max_samples = 2000000;
   std::string source = "recording";  // for error messages
 
   bool IsValid(std::string* error) const;

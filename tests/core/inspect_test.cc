@@ -210,6 +210,18 @@ TEST(Inspect, ShortRecordingExplainsWhyTheExcitationCheckWasSkipped) {
   EXPECT_NE(s.excitation_note().find("skipped"), std::string::npos);
 }
 
+TEST(Inspect, LongRecordingIsNotHeldInMemoryForTheExcitationCheck) {
+  InspectOptions options;
+  options.excitation.max_samples = 1000;  // the demo box has 5961
+  const proto::InspectSummary s =
+      Inspect(DemoBox().recording, "demo_box", options);
+  EXPECT_EQ(s.excitation_size(), 0);
+  EXPECT_NE(s.excitation_note().find("cut out the compensation flight"),
+            std::string::npos)
+      << s.excitation_note();
+  EXPECT_EQ(s.maneuvers_size(), 12) << "maneuvers are still reported";
+}
+
 // ---- command line -------------------------------------------------------
 
 struct Result {
