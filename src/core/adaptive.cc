@@ -40,8 +40,9 @@ BandPass ModelBandPass(const proto::CompensationModel& model,
 bool AdaptOptions::IsValid(std::string* error) const {
   std::string why;
   if (!(drift_sigma_per_min >= 0.0 && std::isfinite(drift_sigma_per_min))) {
-    why = "drift must be zero or a positive number of standard errors per "
-          "minute";
+    why =
+        "drift must be zero or a positive number of standard errors per "
+        "minute";
   } else if (!(bound_sigma > 0.0 && std::isfinite(bound_sigma))) {
     why = "bound must be a positive number of standard errors";
   } else if (!(update_interval_s > 0.0 && std::isfinite(update_interval_s))) {
@@ -206,7 +207,8 @@ void Adapter::Update(models::Compensator& compensator, double time,
   compensator.SetCoefficients(theta_.data(), mean_ + summary_.level_nT);
   update.level_nT = summary_.level_nT;
   summary_.coefficients = theta_;
-  summary_.largest_sigma = std::max(summary_.largest_sigma, update.largest_sigma);
+  summary_.largest_sigma =
+      std::max(summary_.largest_sigma, update.largest_sigma);
   ++summary_.updates;
   update.samples_used = summary_.samples_used;
   since_update_ = 0;
@@ -220,9 +222,9 @@ std::string Adapter::FormatUpdate(const AdaptUpdate& u) {
                 "adapt t=%.3f s: %d moved, largest change %.2f sigma%s%s%s, "
                 "%d clipped, %zu samples used, level %+.4f nT",
                 u.time, u.moved, u.largest_sigma,
-                u.largest_name.empty() ? "" : " (",
-                u.largest_name.c_str(), u.largest_name.empty() ? "" : ")",
-                u.clipped, u.samples_used, u.level_nT);
+                u.largest_name.empty() ? "" : " (", u.largest_name.c_str(),
+                u.largest_name.empty() ? "" : ")", u.clipped, u.samples_used,
+                u.level_nT);
   return buf;
 }
 

@@ -81,15 +81,15 @@ struct AdaptOptions {
 
 // One coefficient update, as logged.
 struct AdaptUpdate {
-  double time = 0.0;          // s, time of the last sample used
-  int moved = 0;              // coefficients changed by more than
-                              // kMovedSigma since the previous update
-  double largest_sigma = 0.0; // largest |total change| / std_error
-  std::string largest_name;   // the term with that change ("" when none)
-  int clipped = 0;            // coefficients at +-bound_sigma
+  double time = 0.0;             // s, time of the last sample used
+  int moved = 0;                 // coefficients changed by more than
+                                 // kMovedSigma since the previous update
+  double largest_sigma = 0.0;    // largest |total change| / std_error
+  std::string largest_name;      // the term with that change ("" when none)
+  int clipped = 0;               // coefficients at +-bound_sigma
   std::size_t samples_used = 0;  // samples that entered the filter so far
-  double level_nT = 0.0;      // level carried over so far (added to the
-                              // model's interference_mean_nT)
+  double level_nT = 0.0;         // level carried over so far (added to the
+                                 // model's interference_mean_nT)
 };
 
 struct AdaptSummary {
@@ -135,32 +135,31 @@ class Adapter {
  private:
   void Step(const double* u, double y);
   // row: the term row of the last observed sample (level continuity).
-  void Update(models::Compensator& compensator, double time,
-              const double* row);
+  void Update(models::Compensator& compensator, double time, const double* row);
 
   AdaptOptions options_;
   std::function<void(const AdaptUpdate&)> on_update_;
   std::vector<std::string> names_;
-  std::vector<double> theta_fit_;    // physical units, all terms
-  std::vector<std::size_t> adapted_; // term indices allowed to move
-  std::vector<double> sigma_;        // std_error of adapted terms
+  std::vector<double> theta_fit_;     // physical units, all terms
+  std::vector<std::size_t> adapted_;  // term indices allowed to move
+  std::vector<double> sigma_;         // std_error of adapted terms
   double residual_sigma_ = 0.0;
   BandPass band_pass_;
-  CausalBandPass filter_;            // channel 0: g, then adapted rows
+  CausalBandPass filter_;  // channel 0: g, then adapted rows
   std::size_t interval_samples_ = 1;
   std::size_t warmup_samples_ = 0;
   // Kalman state, m = adapted_.size().
-  std::vector<double> z_;            // m, change since the fit (std errors)
-  std::vector<double> p_;            // m x m covariance of z, row-major
-  std::vector<double> pu_;           // m, P u (scratch)
-  std::vector<double> applied_z_;    // m, at the last update
-  double q_ = 0.0;                   // process noise a sample (std errors^2)
-  double r_ = 0.0;                   // measurement noise (nT^2)
-  double mean_ = 0.0;                // model's interference_mean_nT
+  std::vector<double> z_;              // m, change since the fit (std errors)
+  std::vector<double> p_;              // m x m covariance of z, row-major
+  std::vector<double> pu_;             // m, P u (scratch)
+  std::vector<double> applied_z_;      // m, at the last update
+  double q_ = 0.0;                     // process noise a sample (std errors^2)
+  double r_ = 0.0;                     // measurement noise (nT^2)
+  double mean_ = 0.0;                  // model's interference_mean_nT
   std::vector<double> applied_theta_;  // coefficients in the compensator
   // Scratch (no allocation per sample).
   std::vector<double> in_, out_, u_, theta_;
-  std::size_t since_update_ = 0;     // samples used since the last update
+  std::size_t since_update_ = 0;  // samples used since the last update
   std::size_t seen_since_update_ = 0;
   std::uint64_t last_index_ = 0;
   bool any_seen_ = false;

@@ -1,5 +1,6 @@
 // End to end: the built `fluxtrim stream MODEL [--adapt]` on stdin/stdout
 // with the demo recordings (flights/), the model fitted by `fluxtrim fit`.
+#include <gtest/gtest.h>
 #include <sys/wait.h>
 
 #include <cmath>
@@ -8,8 +9,6 @@
 #include <sstream>
 #include <string>
 #include <vector>
-
-#include <gtest/gtest.h>
 
 #include "io/recording.h"
 #include "src/core/butterworth.h"
@@ -61,10 +60,10 @@ class StreamCli : public ::testing::Test {
     dir_ = new std::string(::testing::TempDir() + "stream_cli_test");
     ASSERT_EQ(Shell("mkdir -p " + *dir_), 0);
     model_ = new std::string(*dir_ + "/demo.model");
-    ASSERT_EQ(Shell(std::string(FLUXTRIM_EXE) + " fit " + kFlights +
-                    "demo_box.csv -o " + *model_ + " > " + *dir_ +
-                    "/fit.txt 2>&1"),
-              0)
+    ASSERT_EQ(
+        Shell(std::string(FLUXTRIM_EXE) + " fit " + kFlights +
+              "demo_box.csv -o " + *model_ + " > " + *dir_ + "/fit.txt 2>&1"),
+        0)
         << ReadFile(*dir_ + "/fit.txt");
   }
   static void TearDownTestSuite() {
@@ -74,9 +73,9 @@ class StreamCli : public ::testing::Test {
   }
   // `fluxtrim stream MODEL <args> < input > dir/out.csv 2> dir/err.txt`.
   static int Stream(const std::string& args, const std::string& input) {
-    return Shell(std::string(FLUXTRIM_EXE) + " stream " + *model_ + " " +
-                 args + " < " + input + " > " + *dir_ + "/out.csv 2> " +
-                 *dir_ + "/err.txt");
+    return Shell(std::string(FLUXTRIM_EXE) + " stream " + *model_ + " " + args +
+                 " < " + input + " > " + *dir_ + "/out.csv 2> " + *dir_ +
+                 "/err.txt");
   }
   static std::string Out() { return *dir_ + "/out.csv"; }
   static std::string Err() { return ReadFile(*dir_ + "/err.txt"); }
@@ -122,9 +121,10 @@ TEST_F(StreamCli, AdaptRunsOnStdinWithOneOutputPerInputAndLogsEachUpdate) {
             0);
   const double fixed = BandRms(io::ReadRecording(*dir_ + "/applied.csv"));
   const double adapted = BandRms(out);
-  std::printf("validation box band rms of f_comp: apply %.5f nT, stream "
-              "--adapt %.5f nT\n",
-              fixed, adapted);
+  std::printf(
+      "validation box band rms of f_comp: apply %.5f nT, stream "
+      "--adapt %.5f nT\n",
+      fixed, adapted);
   EXPECT_LT(adapted, 1.10 * fixed);
 }
 
@@ -151,9 +151,9 @@ TEST_F(StreamCli, WithoutAdaptTheStreamEqualsApply) {
 TEST_F(StreamCli, ABadAdaptParameterIsAUsageError) {
   const std::string input = kFlights + "demo_validation_box.csv";
   const std::vector<std::string> bad = {
-      "--adapt --adapt-drift -1",     "--adapt --adapt-drift abc",
+      "--adapt --adapt-drift -1",      "--adapt --adapt-drift abc",
       "--adapt --adapt-bound-sigma 0", "--adapt --adapt-bound-sigma nan",
-      "--adapt --adapt-interval 0",   "--adapt-bound-sigma 5",  // no --adapt
+      "--adapt --adapt-interval 0",    "--adapt-bound-sigma 5",  // no --adapt
   };
   for (const std::string& args : bad) {
     EXPECT_EQ(Stream(args, input), 2) << args << "\n" << Err();

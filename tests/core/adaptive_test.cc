@@ -1,6 +1,7 @@
 #include "src/core/adaptive.h"
 
 #include <fcntl.h>
+#include <gtest/gtest.h>
 #include <unistd.h>
 
 #include <cmath>
@@ -12,17 +13,15 @@
 #include <string>
 #include <vector>
 
-#include <gtest/gtest.h>
-
 #include "io/error.h"
 #include "io/memory_recording.h"
 #include "io/model_file.h"
 #include "io/recording.h"
 #include "models/tolles_lawson.h"
 #include "src/core/apply.h"
+#include "src/core/butterworth.h"
 #include "src/core/fit.h"
 #include "src/core/fit_model.h"
-#include "src/core/butterworth.h"
 #include "src/core/stream.h"
 
 namespace fluxtrim::core {
@@ -34,16 +33,17 @@ constexpr double kNoiseNt = 0.02;  // white sensor noise of the simulation
 
 // Standard errors written into the test model, per group (physical units).
 double StdError(const std::string& name) {
-  if (name.rfind("perm", 0) == 0) return 0.2;   // nT
-  if (name.rfind("ind", 0) == 0) return 1e-5;   // 1
-  return 4e-6;                                  // s
+  if (name.rfind("perm", 0) == 0) return 0.2;  // nT
+  if (name.rfind("ind", 0) == 0) return 1e-5;  // 1
+  return 4e-6;                                 // s
 }
 
 proto::CompensationModel TestModel(const std::vector<double>& theta) {
   proto::CompensationModel m;
   m.set_schema_version(io::kModelSchemaVersion);
   m.mutable_terms()->set_set("default");
-  const std::vector<std::string> names = models::TermNames(models::TermOptions());
+  const std::vector<std::string> names =
+      models::TermNames(models::TermOptions());
   for (std::size_t j = 0; j < names.size(); ++j) {
     proto::Coefficient* c = m.add_coefficients();
     c->set_name(names[j]);
@@ -77,7 +77,8 @@ std::vector<double> FittedCoefficients() {
 }
 
 std::size_t TermIndex(const std::string& name) {
-  const std::vector<std::string> names = models::TermNames(models::TermOptions());
+  const std::vector<std::string> names =
+      models::TermNames(models::TermOptions());
   for (std::size_t j = 0; j < names.size(); ++j) {
     if (names[j] == name) return j;
   }
@@ -97,12 +98,13 @@ Flight Simulate(double duration_s, const std::vector<double>& theta_fit,
                 std::size_t drift_term, double drift_end) {
   const std::size_t n = static_cast<std::size_t>(duration_s * kRateHz);
   const double earth[3] = {20000.0, 1000.0, 45000.0};
-  const double earth_total = std::sqrt(20000.0 * 20000.0 + 1000.0 * 1000.0 +
-                                       45000.0 * 45000.0);
+  const double earth_total =
+      std::sqrt(20000.0 * 20000.0 + 1000.0 * 1000.0 + 45000.0 * 45000.0);
   std::vector<double> time(n), bx(n), by(n), bz(n), f(n);
   for (std::size_t i = 0; i < n; ++i) {
     const double t = static_cast<double>(i) / kRateHz;
-    const double yaw = 2 * kPi * t / 400.0 + 0.05 * std::sin(2 * kPi * 0.17 * t);
+    const double yaw =
+        2 * kPi * t / 400.0 + 0.05 * std::sin(2 * kPi * 0.17 * t);
     const double pitch = 0.07 * std::sin(2 * kPi * 0.23 * t + 1.0);
     const double roll = 0.09 * std::sin(2 * kPi * 0.31 * t + 2.0);
     // Body components of the earth field: B_body = R' B_ned for the 3-2-1
@@ -130,9 +132,9 @@ Flight Simulate(double duration_s, const std::vector<double>& theta_fit,
   // interference: two passes make f consistent to far below the noise.
   std::vector<double> measured = f;
   for (int pass = 0; pass < 2; ++pass) {
-    const models::TermMatrix m = models::BuildTermMatrix(
-        options, n, time.data(), bx.data(), by.data(), bz.data(),
-        measured.data(), {});
+    const models::TermMatrix m =
+        models::BuildTermMatrix(options, n, time.data(), bx.data(), by.data(),
+                                bz.data(), measured.data(), {});
     for (std::size_t i = 0; i < n; ++i) {
       const double drift =
           drift_end * static_cast<double>(i) / static_cast<double>(n - 1);
@@ -144,8 +146,10 @@ Flight Simulate(double duration_s, const std::vector<double>& theta_fit,
       measured[i] = f[i] + h + noise_values[i];
     }
   }
-  Flight flight{io::Table({{"time", "s", ""}, {"bx", "nT", ""},
-                           {"by", "nT", ""}, {"bz", "nT", ""},
+  Flight flight{io::Table({{"time", "s", ""},
+                           {"bx", "nT", ""},
+                           {"by", "nT", ""},
+                           {"bz", "nT", ""},
                            {"f", "nT", ""}}),
                 f};
   flight.table.Column("time") = time;
@@ -162,8 +166,8 @@ struct AdaptedRun {
   std::vector<AdaptUpdate> updates;
 };
 
-AdaptedRun ApplyAdapted(const proto::CompensationModel& model, const io::Table& rec,
-                 const AdaptOptions& options) {
+AdaptedRun ApplyAdapted(const proto::CompensationModel& model,
+                        const io::Table& rec, const AdaptOptions& options) {
   AdaptedRun run;
   Adapter adapter(model, options, "test model",
                   [&run](const AdaptUpdate& u) { run.updates.push_back(u); });
@@ -208,10 +212,11 @@ TEST(AdaptiveTest, AdaptationReducesTheResidualOfADriftingCoefficient) {
   const std::size_t from = flight.truth.size() * 2 / 3;  // last third
   const double rms_fixed = BandErrorRms(fixed, flight.truth, from);
   const double rms_adapted = BandErrorRms(adapted.out, flight.truth, from);
-  std::printf("band error rms, last third: fixed %.4f nT, adapted %.4f nT; "
-              "ind_yy change %.2f sigma (truth at end 2.5), %zu updates\n",
-              rms_fixed, rms_adapted, adapted.summary.change_sigma[j],
-              adapted.summary.updates);
+  std::printf(
+      "band error rms, last third: fixed %.4f nT, adapted %.4f nT; "
+      "ind_yy change %.2f sigma (truth at end 2.5), %zu updates\n",
+      rms_fixed, rms_adapted, adapted.summary.change_sigma[j],
+      adapted.summary.updates);
   // The drift must matter against the band-passed noise (0.008 nT) for the
   // test to be able to fail.
   ASSERT_GT(rms_fixed, 3.0 * kNoiseNt * 0.4);
@@ -271,9 +276,8 @@ TEST(AdaptiveTest, WithoutAdaptationTheOutputIsApplysBitForBit) {
   ApplyOptions apply;
   std::size_t seen = 0;
   apply.observe = [&seen](models::Compensator&,
-                          const models::CompensatedSample*, int n) {
-    seen += static_cast<std::size_t>(n);
-  };
+                          const models::CompensatedSample*,
+                          int n) { seen += static_cast<std::size_t>(n); };
   ApplyChunked(model, reader, writer, apply);
   const io::Table observed = writer.table();
   ASSERT_EQ(seen, flight.table.rows());
@@ -282,7 +286,8 @@ TEST(AdaptiveTest, WithoutAdaptationTheOutputIsApplysBitForBit) {
   const std::string out_path = ::testing::TempDir() + "adaptive_test_out.csv";
   io::WriteRecording(in_path, flight.table);
   const int in_fd = ::open(in_path.c_str(), O_RDONLY);
-  const int out_fd = ::open(out_path.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
+  const int out_fd =
+      ::open(out_path.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
   ASSERT_GE(in_fd, 0);
   ASSERT_GE(out_fd, 0);
   StreamOptions stream;  // adapt is off by default
@@ -359,13 +364,14 @@ io::Table WithPermanentStep(const io::Table& rec, double t_on,
 TEST(AdaptiveTest, WithoutDriftTheDemoValidationBoxIsNotDegraded) {
   const Demo& demo = DemoData();
   const io::Table fixed = ApplyInMemory(demo.model, demo.validation);
-  const AdaptedRun run = ApplyAdapted(demo.model, demo.validation, AdaptOptions());
+  const AdaptedRun run =
+      ApplyAdapted(demo.model, demo.validation, AdaptOptions());
   const double rms_fixed = BandErrorRms(fixed, demo.ambient, 0);
   const double rms_adapted = BandErrorRms(run.out, demo.ambient, 0);
-  std::printf("demo validation box, no drift: fixed %.5f nT, adapted %.5f nT, "
-              "largest change %.2f sigma, %zu updates\n",
-              rms_fixed, rms_adapted, run.summary.largest_sigma,
-              run.summary.updates);
+  std::printf(
+      "demo validation box, no drift: fixed %.5f nT, adapted %.5f nT, "
+      "largest change %.2f sigma, %zu updates\n",
+      rms_fixed, rms_adapted, run.summary.largest_sigma, run.summary.updates);
   ASSERT_GT(run.summary.updates, 300u);  // it did adapt
   EXPECT_LT(rms_adapted, 1.10 * rms_fixed);
 }
@@ -384,11 +390,12 @@ TEST(AdaptiveTest, AdaptationFollowsAPermanentStepWithinTheBound) {
   const std::size_t from = 1500;  // t_on + 50 s at 10 Hz
   const double rms_fixed = BandErrorRms(fixed, demo.ambient, from);
   const double rms_adapted = BandErrorRms(run.out, demo.ambient, from);
-  const double rms_before = BandErrorRms(ApplyInMemory(demo.model, demo.validation),
-                                         demo.ambient, from);
-  std::printf("permanent step (0.08, -0.05, 0.4) nT: fixed %.5f nT, adapted "
-              "%.5f nT (no step %.5f)\n",
-              rms_fixed, rms_adapted, rms_before);
+  const double rms_before = BandErrorRms(
+      ApplyInMemory(demo.model, demo.validation), demo.ambient, from);
+  std::printf(
+      "permanent step (0.08, -0.05, 0.4) nT: fixed %.5f nT, adapted "
+      "%.5f nT (no step %.5f)\n",
+      rms_fixed, rms_adapted, rms_before);
   ASSERT_GT(rms_fixed, 2.0 * rms_before);  // the step matters
   EXPECT_LT(rms_adapted, 0.5 * rms_fixed);
 }
@@ -411,9 +418,10 @@ TEST(AdaptiveTest, ALargePermanentStepIsClippedUnlessTheBoundAllowsIt) {
   const double rms_fixed = BandErrorRms(fixed, demo.ambient, from);
   const double rms_bounded = BandErrorRms(bounded.out, demo.ambient, from);
   const double rms_followed = BandErrorRms(followed.out, demo.ambient, from);
-  std::printf("permanent step (2, -1.5, 3) nT: fixed %.5f nT, adapted %.5f nT "
-              "(bound 3 sigma), %.5f nT (bound 100 sigma)\n",
-              rms_fixed, rms_bounded, rms_followed);
+  std::printf(
+      "permanent step (2, -1.5, 3) nT: fixed %.5f nT, adapted %.5f nT "
+      "(bound 3 sigma), %.5f nT (bound 100 sigma)\n",
+      rms_fixed, rms_bounded, rms_followed);
   EXPECT_GT(bounded.updates.back().clipped, 0);
   EXPECT_LT(rms_followed, 0.5 * rms_fixed);
   EXPECT_LT(rms_followed, 0.5 * rms_bounded);
@@ -425,7 +433,8 @@ TEST(AdaptiveTest, RefusesAModelWithoutResidualSigmaOrStandardErrors) {
   model.mutable_quality()->set_residual_sigma_nt(0.0);
   EXPECT_THROW(Adapter(model, AdaptOptions(), "m.txt", {}), io::InputError);
   model = TestModel(theta);
-  for (proto::Coefficient& c : *model.mutable_coefficients()) c.set_std_error(0);
+  for (proto::Coefficient& c : *model.mutable_coefficients())
+    c.set_std_error(0);
   EXPECT_THROW(Adapter(model, AdaptOptions(), "m.txt", {}), io::InputError);
   AdaptOptions bad;
   bad.drift_sigma_per_min = -1.0;
