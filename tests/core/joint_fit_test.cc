@@ -183,6 +183,25 @@ TEST(FitWithSensor, CalibratedTableNeedsTheCalibrationsTemperatureChannel) {
   EXPECT_THROW(CalibratedTable(flight.recording, cal), std::invalid_argument);
 }
 
+TEST(FitWithSensor, ApplyRefusesAModelWhoseEmbeddedCalibrationIsUnusable) {
+  const SimulatedFlight flight =
+      SimulateScenarioText(DroneBoxText(true, false), "drone box");
+  const FitResult fit =
+      FitWithSensor(flight.recording, TrueCalibration(), BoxFitOptions(flight));
+  ASSERT_TRUE(fit.usable) << fit.message;
+  proto::CompensationModel model = ModelFromFit(fit, FitProvenance());
+  proto::SensorCalibration bad = TrueCalibration();
+  bad.mutable_gains()->set_y(0.0);  // a zero gain makes S singular
+  AttachSensor(bad, &model);
+  try {
+    ApplyInMemory(model, flight.recording, "model.ftmodel");
+    FAIL() << "expected io::InputError";
+  } catch (const io::InputError& e) {
+    EXPECT_NE(std::string(e.what()).find("sensor.gains.y"), std::string::npos)
+        << e.what();
+  }
+}
+
 struct JointCase {
   SimulatedFlight flight;
   JointFitResult joint;
