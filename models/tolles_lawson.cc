@@ -151,7 +151,9 @@ TermEngine::TermEngine(const Options& options) : options_(options) {
   term_count_ = TermCount(options_.terms);
   aux_count_ = options_.terms.aux.size();
   const int k = options_.half_width;
-  ring_size_ = static_cast<std::size_t>(2 * k + 1);
+  ring_size_ = 1;
+  while (ring_size_ < static_cast<std::size_t>(2 * k + 1)) ring_size_ *= 2;
+  ring_mask_ = ring_size_ - 1;
   ring_.resize(ring_size_);
   aux_store_.assign(ring_size_ * aux_count_, 0.0);
   rows_.assign(static_cast<std::size_t>(max_outputs()) * term_count_, 0.0);

@@ -145,12 +145,16 @@ class TermEngine {
   };
   int Emit(std::size_t ring_slot, bool derivative_valid, Output* out);
   int FlushSegment(Output* out, int n);
-  std::size_t Slot(std::size_t position) const { return position % ring_size_; }
+  // The ring holds a power-of-two number of slots >= 2k+1, so that a slot
+  // is a mask, not a division (a division per window sample was a third of
+  // the per-sample cost).
+  std::size_t Slot(std::size_t position) const { return position & ring_mask_; }
 
   Options options_;
   std::size_t term_count_ = 0;
   std::size_t aux_count_ = 0;
   std::size_t ring_size_ = 0;
+  std::size_t ring_mask_ = 0;
   std::vector<Pending> ring_;
   std::vector<double> aux_store_;
   std::vector<double> rows_;           // max_outputs() rows
