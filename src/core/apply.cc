@@ -4,6 +4,7 @@
 #include <exception>
 #include <cmath>
 #include <limits>
+#include <memory>
 #include <sstream>
 
 #include "io/error.h"
@@ -26,6 +27,64 @@ std::string Join(const std::vector<std::string>& names) {
   for (const std::string& n : names) s += (s.empty() ? "" : ", ") + n;
   return s;
 }
+
+// Feeds rows of a table (any table with the recording's schema) to a
+// compensator: the one place that maps channels to Compensator::Push
+// arguments, for the chunked and the in-memory paths alike.
+class RowPusher {
+ public:
+  RowPusher(const proto::CompensationModel& model, const io::Table& schema,
+            models::Compensator* compensator)
+      : compensator_(compensator) {
+    i_time_ = schema.Find("time");
+    i_bx_ = schema.Find("bx");
+    i_by_ = schema.Find("by");
+    i_bz_ = schema.Find("bz");
+    i_f_ = compensator->model().scalar_sensor ? schema.Find("f") : -1;
+    i_roll_ = schema.Find("roll");
+    i_pitch_ = schema.Find("pitch");
+    if (model.has_sensor() && !model.sensor().temperature_channel().empty()) {
+      i_temp_ = schema.Find(model.sensor().temperature_channel());
+    }
+    for (int a = 0; a < model.terms().aux_size(); ++a) {
+      i_aux_.push_back(schema.Find(model.terms().aux(a)));
+    }
+    aux_.resize(i_aux_.size());
+  }
+
+  // Pushes rows [begin, end) of `table`; after each push, `sink(out, n)`
+  // receives the samples that came out.
+  template <typename Sink>
+  void Push(const io::Table& table, std::size_t begin, std::size_t end,
+            models::CompensatedSample* out, Sink&& sink) {
+    auto col = [&table](int i) -> const double* {
+      return i < 0 ? nullptr
+                   : table.channel(static_cast<std::size_t>(i)).values.data();
+    };
+    const double *t = col(i_time_), *bx = col(i_bx_), *by = col(i_by_),
+                 *bz = col(i_bz_), *f = col(i_f_), *roll = col(i_roll_),
+                 *pitch = col(i_pitch_), *temp = col(i_temp_);
+    std::vector<const double*> aux(i_aux_.size());
+    for (std::size_t a = 0; a < aux.size(); ++a) aux[a] = col(i_aux_[a]);
+    const double temp_default = compensator_->model().sensor.reference_temp_c;
+    for (std::size_t r = begin; r < end; ++r) {
+      const double b[3] = {bx[r], by[r], bz[r]};
+      for (std::size_t a = 0; a < aux.size(); ++a) aux_[a] = aux[a][r];
+      const int n = compensator_->Push(
+          t[r], b, f ? f[r] : kNaN, aux.empty() ? nullptr : aux_.data(),
+          roll ? roll[r] : kNaN, pitch ? pitch[r] : kNaN,
+          temp ? temp[r] : temp_default, out);
+      if (n > 0) sink(out, n);
+    }
+  }
+
+ private:
+  models::Compensator* compensator_;
+  int i_time_ = -1, i_bx_ = -1, i_by_ = -1, i_bz_ = -1, i_f_ = -1,
+      i_roll_ = -1, i_pitch_ = -1, i_temp_ = -1;
+  std::vector<int> i_aux_;
+  std::vector<double> aux_;
+};
 
 }  // namespace
 
@@ -188,12 +247,8 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
       static_cast<std::size_t>(compensator.max_outputs()));
   std::vector<double> f_comp, f_int, flags;
 
-  const std::size_t n_aux = static_cast<std::size_t>(model.terms().aux_size());
-  std::vector<double> aux(n_aux);
   bool checked = false;
-  int i_time = -1, i_bx = -1, i_by = -1, i_bz = -1, i_f = -1, i_roll = -1,
-      i_pitch = -1, i_temp = -1;
-  std::vector<int> i_aux(n_aux, -1);
+  std::unique_ptr<RowPusher> pusher;
 
   auto collect = [&](int n) {
     if (options.observe && n > 0) options.observe(compensator, ready.data(), n);
@@ -231,26 +286,8 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
   // Rows of `pending` already pushed into the compensator.
   std::size_t pushed = 0;
   auto push_pending = [&]() {
-    auto col = [&pending](int i) -> const double* {
-      return i < 0 ? nullptr
-                   : pending.channel(static_cast<std::size_t>(i)).values.data();
-    };
-    const double *t = col(i_time), *bx = col(i_bx), *by = col(i_by),
-                 *bz = col(i_bz), *f = col(i_f), *roll = col(i_roll),
-                 *pitch = col(i_pitch), *temp = col(i_temp);
-    const bool scalar = compensator.model().scalar_sensor;
-    for (std::size_t r = pushed; r < pending.rows(); ++r) {
-      const double b[3] = {bx[r], by[r], bz[r]};
-      for (std::size_t a = 0; a < n_aux; ++a) {
-        aux[a] = pending.channel(static_cast<std::size_t>(i_aux[a])).values[r];
-      }
-      const int n = compensator.Push(
-          t[r], b, scalar && f ? f[r] : kNaN, n_aux ? aux.data() : nullptr,
-          roll ? roll[r] : kNaN, pitch ? pitch[r] : kNaN,
-          temp ? temp[r] : compensator.model().sensor.reference_temp_c,
-          ready.data());
-      collect(n);
-    }
+    pusher->Push(pending, pushed, pending.rows(), ready.data(),
+                 [&](const models::CompensatedSample*, int n) { collect(n); });
     pushed = pending.rows();
   };
   // The sample rate is checked on the first rate_check_rows samples (or the
@@ -271,19 +308,7 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
       if (more && pending.rows() < rate_rows) continue;
       if (pending.rows() == 0 || (fault && pending.rows() < 3)) break;
       CheckRecordingFitsModel(model, pending, file);
-      i_time = pending.Find("time");
-      i_bx = pending.Find("bx");
-      i_by = pending.Find("by");
-      i_bz = pending.Find("bz");
-      i_f = pending.Find("f");
-      i_roll = pending.Find("roll");
-      i_pitch = pending.Find("pitch");
-      if (model.has_sensor() && !model.sensor().temperature_channel().empty()) {
-        i_temp = pending.Find(model.sensor().temperature_channel());
-      }
-      for (std::size_t a = 0; a < n_aux; ++a) {
-        i_aux[a] = pending.Find(model.terms().aux(static_cast<int>(a)));
-      }
+      pusher = std::make_unique<RowPusher>(model, pending, &compensator);
       checked = true;
     }
     push_pending();
@@ -304,12 +329,41 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
 
 io::Table ApplyInMemory(const proto::CompensationModel& model,
                         const io::Table& recording, const std::string& file) {
-  io::TableReader reader(recording, file);
-  io::TableWriter writer(OutputSchema(recording.Schema()));
-  ApplyOptions options;
-  options.chunk_rows = std::max<std::size_t>(recording.rows(), 1);
-  ApplyChunked(model, reader, writer, options);
-  return std::move(writer.table());
+  // The same steps as ApplyChunked with the whole table as one chunk
+  // (tests/core/apply_test checks the outputs are equal bit for bit),
+  // without its staging copies: the input is copied once into the output.
+  if (recording.rows() == 0) {
+    throw io::InputError(file, 0, 0, "expected samples, found none");
+  }
+  CheckRecordingFitsModel(model, recording, file);
+  io::Table out(OutputSchema(recording.Schema()));
+  const std::size_t base = recording.cols(), n = recording.rows();
+  for (std::size_t c = 0; c < base; ++c) {
+    out.channel(c).values = recording.channel(c).values;
+  }
+  auto output_column = [&out, n](std::size_t c) {
+    out.channel(c).values.assign(n, 0.0);
+    return out.channel(c).values.data();
+  };
+  double* f_comp = output_column(base);
+  double* f_int = output_column(base + 1);
+  double* flags = output_column(base + 2);
+
+  models::Compensator compensator(ToCompensatorModel(model, file));
+  RowPusher pusher(model, recording, &compensator);
+  std::vector<models::CompensatedSample> ready(
+      static_cast<std::size_t>(compensator.max_outputs()));
+  auto store = [&](const models::CompensatedSample* s, int count) {
+    for (int k = 0; k < count; ++k) {
+      const std::size_t i = static_cast<std::size_t>(s[k].index);
+      f_comp[i] = s[k].f_comp;
+      f_int[i] = s[k].f_interference;
+      flags[i] = static_cast<double>(s[k].flags);
+    }
+  };
+  pusher.Push(recording, 0, n, ready.data(), store);
+  store(ready.data(), compensator.Flush(ready.data()));
+  return out;
 }
 
 }  // namespace fluxtrim::core
