@@ -56,6 +56,17 @@ class BandPass {
   std::vector<double> Filter(const std::vector<double>& x) const;
   void Filter(const double* x, std::size_t n, double* y) const;
 
+  // Several channels at once, each exactly as Filter (the same operations
+  // in the same order, so the same bits), in one pass over memory: sample i
+  // of channel c is x[i * x_stride + c] (row-major, e.g. a row of the term
+  // matrix), c < channels. Output samples [out_begin, out_end) of channel c
+  // go to y[c * y_column_stride + (i - out_begin)] (column-major, e.g. an
+  // Eigen column block). Same requirements and exceptions as Filter.
+  void FilterChannels(const double* x, std::size_t n, std::size_t x_stride,
+                      std::size_t channels, std::size_t out_begin,
+                      std::size_t out_end, double* y,
+                      std::size_t y_column_stride) const;
+
   // Filters each maximal run of finite samples on its own (a gap restarts
   // the filter, as a new recording would). Samples in gaps and in runs
   // shorter than min_length() come out NaN; their count goes to

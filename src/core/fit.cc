@@ -6,6 +6,7 @@
 #include <cstdio>
 #include <cstdlib>
 #include <ctime>
+#include <future>
 #include <memory>
 #include <numeric>
 #include <sstream>
@@ -119,7 +120,7 @@ struct Work {
   std::size_t n = 0, p = 0;
   double rate = 0;
   int k = 1;
-  std::vector<double> time;
+  const std::vector<double>* time = nullptr;  // the recording's column
   models::TermMatrix tm;
   std::vector<double> field;          // measured field (f or |B|), raw
   bool scalar = false;                // field is the scalar sensor
@@ -409,7 +410,7 @@ LagResult EstimateLag(const Work& w, const std::vector<double>& band_full,
       ad(i, static_cast<long>(j)) = w.a(coarse.rows[static_cast<std::size_t>(i)], free[j]);
     }
   }
-  const CompressedDesign design(ad);
+  const DesignCompressor design(ad);
   const double step = std::max(1e-3, 0.05 * w.rate);
   const int half = static_cast<int>(std::ceil(max_lag_samples / step));
   double best_rss = std::numeric_limits<double>::infinity();
@@ -635,6 +636,7 @@ bool FitOptions::IsValid(std::string* error) const {
     return fail("maximum flagged fraction must be within [0, 1]");
   }
   if (models::TermCount(terms) == 0) return fail("the term set is empty");
+  if (threads < 1) return fail("threads must be >= 1");
   return true;
 }
 
@@ -690,7 +692,7 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
                          "--aux channel); the recording has: " + have);
   }
   w.n = table.rows();
-  w.time = table.Column("time");
+  w.time = &table.Column("time");
   const auto& bx = table.Column("bx");
   const auto& by = table.Column("by");
   const auto& bz = table.Column("bz");
@@ -723,13 +725,13 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
     aux_rms.push_back(c ? std::sqrt(s / static_cast<double>(c)) : 0.0);
   }
   result.samples = w.n;
-  result.time = w.time;
+  result.time = *w.time;
   if (w.n > 0) {
-    result.start_s = w.time.front();
-    result.end_s = w.time.back();
+    result.start_s = w.time->front();
+    result.end_s = w.time->back();
   }
 
-  w.rate = EstimateSampleRate(w.time, options.source);
+  w.rate = EstimateSampleRate(*w.time, options.source);
   w.k = options.derivative_half_width > 0
             ? options.derivative_half_width
             : DefaultDerivativeHalfWidth(w.rate);
@@ -788,9 +790,19 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
     }
   }
 
+  // Maneuver detection needs only the recording: it runs on a second
+  // thread (options.threads > 1) while the term matrix is built and
+  // filtered; the result is taken before the first solve.
+  std::future<ManeuverDetection> detection_job;
+  if (!options.maneuvers_given) {
+    detection_job = std::async(
+        options.threads > 1 ? std::launch::async : std::launch::deferred,
+        [&table] { return DetectManeuvers(table); });
+  }
+
   clock.Mark("setup");
   // ---- terms -------------------------------------------------------------
-  w.tm = models::BuildTermMatrix(result.engine, w.n, w.time.data(), bx.data(),
+  w.tm = models::BuildTermMatrix(result.engine, w.n, w.time->data(), bx.data(),
                                  by.data(), bz.data(), f, aux);
   w.field.resize(w.n);
   for (std::size_t i = 0; i < w.n; ++i) w.field[i] = w.scalar ? f[i] : w.tm.bt[i];
@@ -808,7 +820,7 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   // Samples the nominal rate would have had inside time gaps.
   std::size_t missing_in_gaps = 0;
   for (std::size_t i = 1; i < w.n; ++i) {
-    const double dt = w.time[i] - w.time[i - 1];
+    const double dt = (*w.time)[i] - (*w.time)[i - 1];
     if (std::isfinite(dt) && dt > options.gap_factor / w.rate) {
       missing_in_gaps += static_cast<std::size_t>(std::lround(dt * w.rate)) - 1;
     }
@@ -834,14 +846,31 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   const std::size_t trim = static_cast<std::size_t>(std::ceil(trim_s * w.rate));
   std::size_t skipped_runs = 0;
   {
-    std::vector<double> good_time(w.n), good_field(w.n);
-    for (std::size_t i = 0; i < w.n; ++i) {
-      good_time[i] = good[i] ? w.time[i] : kNaN;
-      good_field[i] = good[i] ? w.field[i] : kNaN;
+    // Contiguous runs of good samples (the segment rule of ContiguousRuns,
+    // lag.h: finite time, step within (0, gap_factor / rate]).
+    std::vector<SampleRun> good_runs;
+    {
+      const std::vector<double>& t = *w.time;
+      const double max_step = options.gap_factor / w.rate;
+      std::size_t i = 0;
+      while (i < w.n) {
+        if (!good[i] || !std::isfinite(t[i])) {
+          ++i;
+          continue;
+        }
+        SampleRun run;
+        run.begin = i++;
+        while (i < w.n && good[i] && std::isfinite(t[i])) {
+          const double dt = t[i] - t[i - 1];
+          if (!(dt > 0) || dt > max_step) break;
+          ++i;
+        }
+        run.end = i;
+        good_runs.push_back(run);
+      }
     }
     const std::size_t k = static_cast<std::size_t>(w.k);
-    for (const SampleRun& r :
-         ContiguousRuns(good_time, good_field, w.rate, options.gap_factor)) {
+    for (const SampleRun& r : good_runs) {
       if (r.end - r.begin <= 2 * k) {
         ++skipped_runs;
         continue;
@@ -886,63 +915,31 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   result.samples_used = n_fit;
 
   clock.Mark("segments");
-  // ---- maneuvers -------------------------------------------------------
-  std::vector<Maneuver> maneuvers;
-  if (options.maneuvers_given) {
-    maneuvers = options.maneuvers;
-    result.maneuver_source =
-        options.maneuver_source.empty() ? "given" : options.maneuver_source;
-  } else {
-    const ManeuverDetection detection = DetectManeuvers(table);
-    maneuvers = detection.maneuvers;
-    result.maneuver_source = detection.source;
-  }
-  if (maneuvers.empty()) {
-    result.message =
-        "no pitch, roll or yaw maneuvers found (maneuver source: " +
-        result.maneuver_source +
-        "): fly the compensation box (pitch, roll and yaw at four headings) "
-        "or give the maneuver times with --segments FILE";
-    return result;
-  }
-  if (maneuvers.size() < 12) {
-    result.warnings.push_back("found " + std::to_string(maneuvers.size()) +
-                              " of the 12 maneuvers of a full box "
-                              "(pitch, roll, yaw at four headings)");
-  }
-
-  clock.Mark("maneuvers");
   // ---- band-passed, equilibrated design ------------------------------------
   {
     const long p = static_cast<long>(w.p);
     w.a.resize(static_cast<long>(n_fit), p);
-    std::vector<double> column(w.n), filtered;
-    for (long j = 0; j < p; ++j) {
-      for (const Run& run : w.runs) {
-        for (std::size_t i = run.begin; i < run.end; ++i) {
-          column[i] = w.tm.values[i * w.p + static_cast<std::size_t>(j)];
-        }
-      }
-      long row = 0;
-      for (const Run& run : w.runs) {
-        filtered.resize(run.end - run.begin);
-        w.band->Filter(column.data() + run.begin, run.end - run.begin,
-                       filtered.data());
-        for (std::size_t i = run.fit_begin; i < run.fit_end; ++i) {
-          w.a(row++, j) = filtered[i - run.begin];
-        }
-      }
+    // All columns of a run in one pass over the row-major term matrix
+    // (BandPass::FilterChannels: per column the same arithmetic as Filter).
+    long row = 0;
+    for (const Run& run : w.runs) {
+      w.band->FilterChannels(w.tm.values.data() + run.begin * w.p,
+                             run.end - run.begin, w.p, w.p,
+                             run.fit_begin - run.begin, run.fit_end - run.begin,
+                             w.a.data() + row, static_cast<std::size_t>(w.a.outerStride()));
+      row += static_cast<long>(run.fit_end - run.fit_begin);
+    }
+    std::vector<double> raw_sum(w.p, 0.0);
+    for (std::size_t r : w.fit_rows) {
+      const double* v = w.tm.values.data() + r * w.p;
+      for (std::size_t j = 0; j < w.p; ++j) raw_sum[j] += v[j] * v[j];
     }
     w.scale.resize(p);
     w.unexcited.assign(w.p, false);
     for (long j = 0; j < p; ++j) {
       const double band_rms = w.a.col(j).norm() / std::sqrt(static_cast<double>(n_fit));
-      double raw = 0;
-      for (std::size_t r : w.fit_rows) {
-        const double v = w.tm.values[r * w.p + static_cast<std::size_t>(j)];
-        raw += v * v;
-      }
-      raw = std::sqrt(raw / static_cast<double>(n_fit));
+      const double raw = std::sqrt(raw_sum[static_cast<std::size_t>(j)] /
+                                   static_cast<double>(n_fit));
       if (!(band_rms > 1e-12 * std::max(1.0, raw)) || !std::isfinite(band_rms)) {
         w.unexcited[static_cast<std::size_t>(j)] = true;
         w.scale(j) = 1.0;
@@ -992,13 +989,16 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
     const std::size_t stride = std::max<std::size_t>(1, (n_fit + 19999) / 20000);
     const long m = static_cast<long>((n_fit + stride - 1) / stride);
     shapes.resize(m, static_cast<long>(w.p));
+    std::vector<char> scaled(w.p);
+    for (std::size_t j = 0; j < w.p; ++j) {
+      const std::string& name = result.term_names[j];
+      scaled[j] = name.rfind("ind_", 0) == 0 || name.rfind("eddy_", 0) == 0;
+    }
     for (long r = 0; r < m; ++r) {
       const std::size_t i = w.fit_rows[static_cast<std::size_t>(r) * stride];
       for (std::size_t j = 0; j < w.p; ++j) {
-        const std::string& name = result.term_names[j];
-        const bool scaled = name.rfind("ind_", 0) == 0 || name.rfind("eddy_", 0) == 0;
         double v = w.tm.values[i * w.p + j];
-        if (scaled) v /= w.tm.bt[i];
+        if (scaled[j]) v /= w.tm.bt[i];
         shapes(r, static_cast<long>(j)) = v;
       }
     }
@@ -1013,13 +1013,13 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
     }
   }
   const CompressedSystem shape_system =
-      Compress(shapes, Eigen::VectorXd::Zero(shapes.rows()));
+      DesignCompressor(shapes).Compress(Eigen::VectorXd::Zero(shapes.rows()));
   clock.Mark("shapes");
 
   std::vector<bool> held;
   std::vector<std::string> notes(w.p);
   clock.Mark("design");
-  const CompressedDesign design(w.a);
+  const DesignCompressor design(w.a);
   const double fixed_lambda = options.ridge_auto ? -1.0 : options.ridge;
   result.ridge_method = options.ridge_auto ? "gcv" : "fixed";
 
@@ -1119,11 +1119,38 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
     return SolveWith(w, Augment(base, w, held), held, fixed_lambda, true);
   };
 
+  // ---- maneuvers (detected on a second thread meanwhile) -----------------
+  std::vector<Maneuver> maneuvers;
+  if (options.maneuvers_given) {
+    maneuvers = options.maneuvers;
+    result.maneuver_source =
+        options.maneuver_source.empty() ? "given" : options.maneuver_source;
+  } else {
+    const ManeuverDetection detection = detection_job.get();
+    maneuvers = detection.maneuvers;
+    result.maneuver_source = detection.source;
+  }
+  if (maneuvers.empty()) {
+    result.message =
+        "no pitch, roll or yaw maneuvers found (maneuver source: " +
+        result.maneuver_source +
+        "): fly the compensation box (pitch, roll and yaw at four headings) "
+        "or give the maneuver times with --segments FILE";
+    return result;
+  }
+  if (maneuvers.size() < 12) {
+    result.warnings.push_back("found " + std::to_string(maneuvers.size()) +
+                              " of the 12 maneuvers of a full box "
+                              "(pitch, roll, yaw at four headings)");
+  }
+
+  clock.Mark("maneuvers (wait)");
   // Condition number of the equilibrated matrix over its excited columns.
   std::vector<double> band_full = BandPassRuns(w, w.field);
   Eigen::VectorXd y = AtFitRows(w, band_full);
+  const CompressedSystem first_system = design.Compress(y);
   {
-    const CompressedSystem s = Augment(design.Compress(y), w, w.unexcited);
+    const CompressedSystem s = Augment(first_system, w, w.unexcited);
     const SvdAnalysis svd = AnalyseSystem(SubSystem(s, FreeColumns(w.unexcited)));
     result.condition_number = svd.condition_number;
   }
@@ -1139,9 +1166,13 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   // The measured field aligned by the current lag, and the same with the
   // outliers' excess removed (robust loss; otherwise identical).
   std::vector<double> aligned = w.field;
-  std::vector<double> cleaned = w.field;
+  // (Only the robust loss cleans; without it `cleaned` stays empty and the
+  // aligned field is used.)
+  std::vector<double> cleaned;
+  const bool robust = options.loss != RobustLoss::kNone;
+  if (robust) cleaned = w.field;
   clock.Mark("qr+shape+cond");
-  Solution solution = determine(design.Compress(y));
+  Solution solution = determine(first_system);
   if (!solution.ok) {
     result.message = "the least-squares solve failed: " + solution.message;
     return result;
@@ -1231,7 +1262,7 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   // ---- lag -----------------------------------------------------------------
   if (w.scalar && options.estimate_lag && options.max_lag_s > 0) {
     // Searched on the (cleaned) field at lag 0.
-    const LagResult lag = EstimateLag(w, BandPassRuns(w, cleaned), held,
+    const LagResult lag = EstimateLag(w, BandPassRuns(w, robust ? cleaned : aligned), held,
                                       solution.lambda, options.max_lag_s * w.rate);
     if (lag.ok) {
       result.lag_estimated = true;
@@ -1243,9 +1274,9 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
             " s lies at the search limit: check the time stamps of the "
             "scalar sensor or raise --max-lag");
       }
-      aligned = ShiftByLag(w.time, w.field, result.lag_s, w.rate,
+      aligned = ShiftByLag(*w.time, w.field, result.lag_s, w.rate,
                            options.gap_factor);
-      cleaned = aligned;
+      if (robust) cleaned = aligned;
       band_full = BandPassRuns(w, aligned);
       y = AtFitRows(w, band_full);
       solution = determine(design.Compress(y));
@@ -1381,32 +1412,66 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
       }
       std::vector<std::vector<long>> block(g_count + 1);
       for (std::size_t r = 0; r < n_fit; ++r) {
-        const double t = w.time[w.fit_rows[r]];
+        const double t = (*w.time)[w.fit_rows[r]];
         std::size_t b = g_count;
         for (std::size_t g = 0; g < g_count && b == g_count; ++g) {
           if (t >= windows[g].first && t <= windows[g].second) b = g;
         }
         block[b].push_back(static_cast<long>(r));
       }
+      // Gram matrix, A^T y and ||y||^2 of each block, summed over its
+      // contiguous stretches of rows (blocks are time windows).
       const long p = static_cast<long>(w.p);
-      std::vector<CompressedSystem> compressed(g_count + 1);
-      for (std::size_t b = 0; b <= g_count; ++b) {
-        const long m = static_cast<long>(block[b].size());
-        Eigen::MatrixXd ab(m, p);
-        Eigen::VectorXd yb(m);
-        for (long r = 0; r < m; ++r) {
-          ab.row(r) = w.a.row(block[b][static_cast<std::size_t>(r)]);
-          yb(r) = y(block[b][static_cast<std::size_t>(r)]);
+      std::vector<Eigen::MatrixXd> gram(g_count + 1, Eigen::MatrixXd::Zero(p, p));
+      std::vector<Eigen::VectorXd> aty(g_count + 1, Eigen::VectorXd::Zero(p));
+      std::vector<double> yy(g_count + 1, 0.0);
+      std::vector<long> block_rows(g_count + 1, 0);
+      {
+        std::vector<std::size_t> owner(n_fit, g_count);
+        for (std::size_t b = 0; b < g_count; ++b) {
+          for (long r : block[b]) owner[static_cast<std::size_t>(r)] = b;
         }
-        if (m >= p) {
-          compressed[b] = Compress(ab, yb);
-        } else {  // fewer rows than terms: keep them as they are
-          compressed[b].r = ab;
-          compressed[b].z = yb;
-          compressed[b].rows = m;
-          compressed[b].y_sum_squares = yb.squaredNorm();
+        std::size_t r0 = 0;
+        while (r0 < n_fit) {
+          std::size_t r1 = r0 + 1;
+          while (r1 < n_fit && owner[r1] == owner[r0]) ++r1;
+          const std::size_t b = owner[r0];
+          const long at = static_cast<long>(r0), len = static_cast<long>(r1 - r0);
+          gram[b].selfadjointView<Eigen::Lower>().rankUpdate(
+              w.a.middleRows(at, len).transpose());
+          aty[b].noalias() += w.a.middleRows(at, len).transpose() * y.segment(at, len);
+          yy[b] += y.segment(at, len).squaredNorm();
+          block_rows[b] += len;
+          r0 = r1;
+        }
+        for (Eigen::MatrixXd& g : gram) {
+          g.triangularView<Eigen::StrictlyUpper>() = g.transpose();
         }
       }
+      // Fallback for a fold too ill-conditioned for the Gram route: the
+      // Householder QR of each block's rows, stacked (as CompressedDesign).
+      std::vector<CompressedSystem> compressed;
+      auto householder_blocks = [&]() {
+        if (!compressed.empty()) return;
+        compressed.resize(g_count + 1);
+        for (std::size_t b = 0; b <= g_count; ++b) {
+          const long m = static_cast<long>(block[b].size());
+          Eigen::MatrixXd ab(m, p);
+          Eigen::VectorXd yb(m);
+          for (long r = 0; r < m; ++r) {
+            ab.row(r) = w.a.row(block[b][static_cast<std::size_t>(r)]);
+            yb(r) = y(block[b][static_cast<std::size_t>(r)]);
+          }
+          if (m >= p) {
+            compressed[b] = Compress(ab, yb);
+          } else {  // fewer rows than terms: keep them as they are
+            compressed[b].r = ab;
+            compressed[b].z = yb;
+            compressed[b].rows = m;
+            compressed[b].y_sum_squares = yb.squaredNorm();
+          }
+        }
+      };
       for (std::size_t g = 0; g < g_count; ++g) {
         CrossValidationFold fold;
         fold.heading_deg = groups[g].heading_deg;
@@ -1415,29 +1480,43 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
             result.time, result.band_before, result.band_after, held_out[g]);
         fold.fom_before_nT = Fom(full, false);
         fold.fom_full_fit_nT = Fom(full, true);
-        long stacked = 0, train_rows = 0;
-        double outside = 0, y2 = 0;
+        long train_rows = 0;
+        double y2 = 0;
+        Eigen::MatrixXd gram_train = Eigen::MatrixXd::Zero(p, p);
+        Eigen::VectorXd aty_train = Eigen::VectorXd::Zero(p);
         for (std::size_t b = 0; b <= g_count; ++b) {
           if (b == g) continue;
-          stacked += compressed[b].r.rows();
-          train_rows += compressed[b].rows;
-          outside += compressed[b].outside_sum_squares;
-          y2 += compressed[b].y_sum_squares;
+          train_rows += block_rows[b];
+          y2 += yy[b];
+          gram_train += gram[b];
+          aty_train += aty[b];
         }
-        if (train_rows >= static_cast<long>(min_rows) && stacked >= p) {
-          Eigen::MatrixXd as(stacked, p);
-          Eigen::VectorXd zs(stacked);
-          long at = 0;
-          for (std::size_t b = 0; b <= g_count; ++b) {
-            if (b == g || compressed[b].r.rows() == 0) continue;
-            as.middleRows(at, compressed[b].r.rows()) = compressed[b].r;
-            zs.segment(at, compressed[b].r.rows()) = compressed[b].z;
-            at += compressed[b].r.rows();
+        if (train_rows >= static_cast<long>(min_rows) && train_rows >= p) {
+          CompressedSystem train;
+          if (!CompressGram(gram_train, aty_train, y2, train_rows,
+                            DesignCompressor::kMaxNormalCondition, &train)) {
+            householder_blocks();
+            long stacked = 0;
+            double outside = 0;
+            for (std::size_t b = 0; b <= g_count; ++b) {
+              if (b == g) continue;
+              stacked += compressed[b].r.rows();
+              outside += compressed[b].outside_sum_squares;
+            }
+            Eigen::MatrixXd as(stacked, p);
+            Eigen::VectorXd zs(stacked);
+            long at = 0;
+            for (std::size_t b = 0; b <= g_count; ++b) {
+              if (b == g || compressed[b].r.rows() == 0) continue;
+              as.middleRows(at, compressed[b].r.rows()) = compressed[b].r;
+              zs.segment(at, compressed[b].r.rows()) = compressed[b].z;
+              at += compressed[b].r.rows();
+            }
+            train = Compress(as, zs);
+            train.outside_sum_squares += outside;
+            train.y_sum_squares = y2;
+            train.rows = train_rows;
           }
-          CompressedSystem train = Compress(as, zs);
-          train.outside_sum_squares += outside;
-          train.y_sum_squares = y2;
-          train.rows = train_rows;
           const Solution s = SolveWith(w, Augment(train, w, held), held,
                                        solution.lambda, false);
           if (s.ok) {

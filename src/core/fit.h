@@ -103,6 +103,10 @@ struct FitOptions {
   double max_flagged_fraction = 0.2;
   // Name used in error messages (file name).
   std::string source = "recording";
+  // Threads of the fit: with 2 or more, maneuver detection runs beside the
+  // term matrix and band-pass; 1 keeps everything on the calling thread.
+  // The results are the same either way.
+  int threads = 2;
 
   bool IsValid(std::string* error) const;
 };

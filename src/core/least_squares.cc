@@ -5,7 +5,9 @@
 #include <memory>
 #include <utility>
 
+#include <Eigen/Cholesky>
 #include <Eigen/QR>
+#include <Eigen/SVD>
 #include <ceres/ceres.h>
 
 namespace fluxtrim::core {
@@ -168,6 +170,109 @@ CompressedSystem CompressedDesign::Compress(
   s.outside_sum_squares =
       outside + stacked.tail(stacked.size() - p).squaredNorm();
   return s;
+}
+
+namespace {
+
+// Cholesky factor R (upper, p x p) of a Gram matrix over its non-zero
+// columns, with zero rows and columns elsewhere; false when not positive
+// definite there or when cond(R) > max_condition.
+bool GramFactor(const Eigen::MatrixXd& gram, double max_condition,
+                Eigen::MatrixXd* r) {
+  const long p = gram.cols();
+  std::vector<long> keep;
+  for (long j = 0; j < p; ++j) {
+    if (gram(j, j) != 0.0) keep.push_back(j);
+  }
+  const long q = static_cast<long>(keep.size());
+  r->setZero(p, p);
+  if (q == 0) return true;
+  Eigen::MatrixXd g(q, q);
+  for (long a = 0; a < q; ++a) {
+    for (long b = 0; b < q; ++b) g(a, b) = gram(keep[a], keep[b]);
+  }
+  if (!g.allFinite()) return false;
+  Eigen::LLT<Eigen::MatrixXd> llt(g);
+  if (llt.info() != Eigen::Success) return false;
+  const Eigen::MatrixXd rq = llt.matrixU();
+  if (!rq.allFinite()) return false;
+  // cond(R) = cond(A) on the kept columns.
+  const Eigen::VectorXd s = Eigen::JacobiSVD<Eigen::MatrixXd>(rq).singularValues();
+  if (!(s(q - 1) > 0) || s(0) > max_condition * s(q - 1)) return false;
+  for (long a = 0; a < q; ++a) {
+    for (long b = a; b < q; ++b) (*r)(keep[a], keep[b]) = rq(a, b);
+  }
+  return true;
+}
+
+// Solves R^T z = h for R upper triangular with zero rows/columns where its
+// diagonal is 0 (z is 0 there).
+Eigen::VectorXd SolveRTranspose(const Eigen::MatrixXd& r,
+                                const Eigen::VectorXd& h) {
+  const long p = r.cols();
+  Eigen::VectorXd z = Eigen::VectorXd::Zero(p);
+  for (long j = 0; j < p; ++j) {
+    if (r(j, j) == 0.0) continue;
+    double v = h(j);
+    for (long i = 0; i < j; ++i) v -= r(i, j) * z(i);
+    z(j) = v / r(j, j);
+  }
+  return z;
+}
+
+// Solves R x = z likewise.
+Eigen::VectorXd SolveR(const Eigen::MatrixXd& r, const Eigen::VectorXd& z) {
+  const long p = r.cols();
+  Eigen::VectorXd x = Eigen::VectorXd::Zero(p);
+  for (long j = p - 1; j >= 0; --j) {
+    if (r(j, j) == 0.0) continue;
+    double v = z(j);
+    for (long k = j + 1; k < p; ++k) v -= r(j, k) * x(k);
+    x(j) = v / r(j, j);
+  }
+  return x;
+}
+
+}  // namespace
+
+DesignCompressor::DesignCompressor(const Eigen::MatrixXd& a,
+                                   double max_condition)
+    : a_(&a) {
+  const long p = a.cols();
+  bool ok = a.rows() >= p && p >= 1;
+  if (ok) {
+    Eigen::MatrixXd gram = Eigen::MatrixXd::Zero(p, p);
+    gram.selfadjointView<Eigen::Lower>().rankUpdate(a.transpose());
+    gram.triangularView<Eigen::StrictlyUpper>() = gram.transpose();
+    ok = GramFactor(gram, max_condition, &r_);
+  }
+  if (!ok) householder_ = std::make_unique<CompressedDesign>(a);
+}
+
+CompressedSystem DesignCompressor::Compress(
+    const Eigen::Ref<const Eigen::VectorXd>& y) const {
+  if (householder_) return householder_->Compress(y);
+  CompressedSystem s;
+  s.rows = a_->rows();
+  s.y_sum_squares = y.squaredNorm();
+  s.r = r_;
+  const Eigen::VectorXd h = a_->transpose() * y;
+  s.z = SolveRTranspose(r_, h);
+  const Eigen::VectorXd x = SolveR(r_, s.z);
+  s.outside_sum_squares = (y - (*a_) * x).squaredNorm();
+  return s;
+}
+
+bool CompressGram(const Eigen::MatrixXd& gram, const Eigen::VectorXd& h,
+                  double y_sum_squares, long rows, double max_condition,
+                  CompressedSystem* out) {
+  if (gram.rows() != gram.cols() || gram.cols() != h.size()) return false;
+  if (!GramFactor(gram, max_condition, &out->r)) return false;
+  out->z = SolveRTranspose(out->r, h);
+  out->rows = rows;
+  out->y_sum_squares = y_sum_squares;
+  out->outside_sum_squares = std::max(0.0, y_sum_squares - out->z.squaredNorm());
+  return true;
 }
 
 LeastSquaresSummary SolveLeastSquares(const CompressedSystem& system,

@@ -46,22 +46,44 @@ double AngleDiff(double a, double b) {
   return d;
 }
 
-// Centred running mean over [i - half, i + half], truncated at the ends.
+// Centred running means over [i - half, i + half], truncated at the ends,
+// of `Channels` series at once (sample i of channel c: value(i, c)).
 // Long double prefix sums keep the error far below the deviations of
-// interest even over long, unwrapped heading series.
-std::vector<double> RunningMean(const std::vector<double>& x,
-                                std::size_t half) {
-  const std::size_t n = x.size();
-  std::vector<long double> prefix(n + 1, 0.0L);
-  for (std::size_t i = 0; i < n; ++i) prefix[i + 1] = prefix[i] + x[i];
-  std::vector<double> out(n);
+// interest even over long, unwrapped heading series; only the last
+// 2 half + 2 prefix sums are kept (a ring), so memory stays O(half) and the
+// prefix values are the same as over the whole series. emit(i, mean) is
+// called for i = 0..n-1 in order, mean[c] the mean of channel c.
+template <std::size_t Channels, typename Value, typename Emit>
+void RunningMeans(std::size_t n, std::size_t half, Value value, Emit emit) {
+  std::size_t ring = 1;  // a power of two >= 2 half + 2 (index by mask)
+  while (ring < 2 * half + 2) ring *= 2;
+  const std::size_t mask = ring - 1;
+  std::vector<std::array<long double, Channels>> prefix(ring);
+  prefix[0].fill(0.0L);
+  std::size_t filled = 0;  // prefix sums known: P[0..filled]
+  long double inv = 0.0L;
+  std::size_t inv_count = 0;
+  double mean[Channels];
   for (std::size_t i = 0; i < n; ++i) {
     const std::size_t lo = i >= half ? i - half : 0;
     const std::size_t hi = std::min(n, i + half + 1);
-    out[i] = static_cast<double>((prefix[hi] - prefix[lo]) /
-                                 static_cast<long double>(hi - lo));
+    while (filled < hi) {
+      const auto& prev = prefix[filled & mask];
+      auto& next = prefix[(filled + 1) & mask];
+      for (std::size_t c = 0; c < Channels; ++c) next[c] = prev[c] + value(filled, c);
+      ++filled;
+    }
+    if (hi - lo != inv_count) {
+      inv_count = hi - lo;
+      inv = 1.0L / static_cast<long double>(inv_count);
+    }
+    const auto& ph = prefix[hi & mask];
+    const auto& pl = prefix[lo & mask];
+    for (std::size_t c = 0; c < Channels; ++c) {
+      mean[c] = static_cast<double>((ph[c] - pl[c]) * inv);
+    }
+    emit(i, mean);
   }
-  return out;
 }
 
 struct CircularStats {
@@ -88,10 +110,17 @@ CircularStats Circular(const double* deg, std::size_t n) {
 // One gap-free stretch of the recording, reduced to what the segmentation
 // needs.
 struct Piece {
-  std::vector<double> t;                       // s
+  const double* t = nullptr;                   // s (the recording's column)
+  std::size_t n = 0;
   std::vector<Vec3> w;                         // deviation vector (deg)
-  std::vector<std::array<Vec3, kKinds>> axis;  // roll/pitch/yaw axes as seen
+  // Roll/pitch/yaw axes as seen: one set for the whole piece (attitude
+  // path) or one per sample (fluxgate path).
+  std::array<Vec3, kKinds> fixed_axis{};
+  std::vector<std::array<Vec3, kKinds>> axis;
   std::vector<double> heading_deg;             // unwrapped heading (deg)
+  const std::array<Vec3, kKinds>& Axis(std::size_t i) const {
+    return axis.empty() ? fixed_axis : axis[i];
+  }
 };
 
 struct Segment {
@@ -119,7 +148,7 @@ struct Counters {
 };
 
 // Time where the series e crosses `level` between samples i-1 and i.
-double CrossingTime(const std::vector<double>& t, const std::vector<double>& e,
+double CrossingTime(const double* t, const std::vector<double>& e,
                     std::size_t i, double level) {
   if (i == 0) return t[0];
   const double de = e[i] - e[i - 1];
@@ -131,19 +160,12 @@ double CrossingTime(const std::vector<double>& t, const std::vector<double>& e,
 void SegmentPiece(const Piece& piece, double rms_threshold_deg,
                   const ManeuverDetectionOptions& options, double dt,
                   std::vector<Segment>* out, Counters* counters) {
-  const std::size_t n = piece.t.size();
+  const std::size_t n = piece.n;
   const std::size_t half =
       static_cast<std::size_t>(std::lround(0.5 * options.window_s / dt));
-  // Windowed second moments M_ab = mean(w_a w_b).
-  std::array<std::vector<double>, 6> m;
-  const int pairs[6][2] = {{0, 0}, {1, 1}, {2, 2}, {0, 1}, {0, 2}, {1, 2}};
-  for (int p = 0; p < 6; ++p) {
-    std::vector<double> prod(n);
-    for (std::size_t i = 0; i < n; ++i) {
-      prod[i] = piece.w[i][pairs[p][0]] * piece.w[i][pairs[p][1]];
-    }
-    m[p] = RunningMean(prod, half);
-  }
+  // Windowed second moments M_ab = mean(w_a w_b), computed on the fly.
+  static constexpr int kPairs[6][2] = {{0, 0}, {1, 1}, {2, 2},
+                                       {0, 1}, {0, 2}, {1, 2}};
   // Energy along each kind's axis, and the per-sample label.
   std::array<std::vector<double>, kKinds> energy;
   for (auto& e : energy) e.assign(n, 0.0);
@@ -153,13 +175,16 @@ void SegmentPiece(const Piece& piece, double rms_threshold_deg,
   const double typical[kKinds] = {options.typical_pitch_deg,
                                   options.typical_roll_deg,
                                   options.typical_yaw_deg};
-  for (std::size_t i = 0; i < n; ++i) {
-    const double total = m[0][i] + m[1][i] + m[2][i];
+  auto product = [&piece](std::size_t i, std::size_t p) {
+    return piece.w[i][kPairs[p][0]] * piece.w[i][kPairs[p][1]];
+  };
+  RunningMeans<6>(n, half, product, [&](std::size_t i, const double* m) {
+    const double total = m[0] + m[1] + m[2];
     counters->max_rms_deg =
         std::max(counters->max_rms_deg, std::sqrt(std::max(total, 0.0)));
     double share[kKinds], amplitude[kKinds];
     for (int k = 0; k < kKinds; ++k) {
-      const Vec3& d = piece.axis[i][k];
+      const Vec3& d = piece.Axis(i)[k];
       const double d2 = Dot(d, d);
       if (!(d2 > 1e-6)) {  // axis along the field: invisible
         share[k] = 0;
@@ -167,26 +192,29 @@ void SegmentPiece(const Piece& piece, double rms_threshold_deg,
         continue;
       }
       // u^T M u / |d|^2 with u = d / |d|.
-      const double e = (d[0] * d[0] * m[0][i] + d[1] * d[1] * m[1][i] +
-                        d[2] * d[2] * m[2][i] + 2 * d[0] * d[1] * m[3][i] +
-                        2 * d[0] * d[2] * m[4][i] + 2 * d[1] * d[2] * m[5][i]) /
+      const double e = (d[0] * d[0] * m[0] + d[1] * d[1] * m[1] +
+                        d[2] * d[2] * m[2] + 2 * d[0] * d[1] * m[3] +
+                        2 * d[0] * d[2] * m[4] + 2 * d[1] * d[2] * m[5]) /
                        d2;
       energy[k][i] = std::max(e, 0.0);
       share[k] = total > 0 ? energy[k][i] / total : 0;
       // Implied peak body angle of a sine with this RMS.
       amplitude[k] = std::sqrt(2.0 * energy[k][i] / d2);
     }
-    if (!(std::sqrt(std::max(total, 0.0)) >= rms_threshold_deg)) continue;
+    if (!(std::sqrt(std::max(total, 0.0)) >= rms_threshold_deg)) return;
     int best = 0;
     for (int k = 1; k < kKinds; ++k) {
       if (share[k] > share[best]) best = k;
     }
-    if (share[best] < options.min_share) continue;
+    if (share[best] < options.min_share) return;
     int chosen = best;
-    double chosen_score = std::abs(std::log(amplitude[best] / typical[best]));
+    double chosen_score = 0;  // set when a second kind competes
     for (int k = 0; k < kKinds; ++k) {
       if (k == best || share[k] < share[best] - options.ambiguity_share) {
         continue;
+      }
+      if (!by_amplitude[i]) {
+        chosen_score = std::abs(std::log(amplitude[best] / typical[best]));
       }
       by_amplitude[i] = 1;
       const double score = std::abs(std::log(amplitude[k] / typical[k]));
@@ -196,7 +224,7 @@ void SegmentPiece(const Piece& piece, double rms_threshold_deg,
       }
     }
     label[i] = chosen;
-  }
+  });
 
   // Runs of one label; short blips become unassigned.
   auto runs_of = [&](const std::vector<int>& lab) {
@@ -441,16 +469,24 @@ ManeuverDetection DetectManeuvers(const io::Table& recording,
   result.source = attitude ? "attitude" : "fluxgate heading";
 
   // Per-sample inputs of either path; invalid samples split the recording.
+  // Attitude path: the angle columns themselves; fluxgate path: c = B/|B|.
   std::vector<bool> valid(n, true);
-  std::vector<Vec3> raw(n);
+  std::vector<Vec3> raw;
+  const double* roll_col = nullptr;
+  const double* pitch_col = nullptr;
+  const double* heading_col = nullptr;
   if (attitude) {
-    const auto& roll = recording.Column("roll");
-    const auto& pitch = recording.Column("pitch");
-    const auto& heading = recording.Column("heading");
+    roll_col = recording.Column("roll").data();
+    pitch_col = recording.Column("pitch").data();
+    heading_col = recording.Column("heading").data();
     for (std::size_t i = 0; i < n; ++i) {
-      raw[i] = {roll[i], pitch[i], heading[i]};
+      if (!std::isfinite(time[i]) || !std::isfinite(roll_col[i]) ||
+          !std::isfinite(pitch_col[i]) || !std::isfinite(heading_col[i])) {
+        valid[i] = false;
+      }
     }
   } else {
+    raw.resize(n);
     const auto& bx = recording.Column("bx");
     const auto& by = recording.Column("by");
     const auto& bz = recording.Column("bz");
@@ -460,11 +496,11 @@ ManeuverDetection DetectManeuvers(const io::Table& recording,
       raw[i] = {bx[i] / norm, by[i] / norm, bz[i] / norm};
       if (!(norm > 0)) valid[i] = false;
     }
-  }
-  for (std::size_t i = 0; i < n; ++i) {
-    if (!std::isfinite(time[i]) || !std::isfinite(raw[i][0]) ||
-        !std::isfinite(raw[i][1]) || !std::isfinite(raw[i][2])) {
-      valid[i] = false;
+    for (std::size_t i = 0; i < n; ++i) {
+      if (!std::isfinite(time[i]) || !std::isfinite(raw[i][0]) ||
+          !std::isfinite(raw[i][1]) || !std::isfinite(raw[i][2])) {
+        valid[i] = false;
+      }
     }
   }
   double dt = 0;
@@ -484,6 +520,7 @@ ManeuverDetection DetectManeuvers(const io::Table& recording,
   Counters counters;
   std::size_t skipped_samples = 0;
   std::size_t begin = 0;
+  Piece piece;
   for (std::size_t brk : breaks) {
     // Piece [begin, brk) minus a leading invalid sample.
     std::size_t b = begin;
@@ -495,45 +532,42 @@ ManeuverDetection DetectManeuvers(const io::Table& recording,
       skipped_samples += len;
       continue;
     }
-    Piece piece;
-    piece.t.assign(time.begin() + b, time.begin() + brk);
+    piece.t = time.data() + b;
+    piece.n = len;
     piece.w.resize(len);
-    piece.axis.resize(len);
     piece.heading_deg.resize(len);
     if (attitude) {
       // Unwrap heading so that 359 -> 1 is a 2 deg step.
-      std::vector<double> ch[3];
-      for (int k = 0; k < 3; ++k) ch[k].resize(len);
+      std::vector<double>& unwrapped = piece.heading_deg;
       for (std::size_t i = 0; i < len; ++i) {
-        ch[0][i] = raw[b + i][0];
-        ch[1][i] = raw[b + i][1];
-        ch[2][i] =
-            i == 0 ? raw[b][2]
-                   : ch[2][i - 1] + AngleDiff(raw[b + i][2], raw[b + i - 1][2]);
+        unwrapped[i] =
+            i == 0 ? heading_col[b]
+                   : unwrapped[i - 1] +
+                         AngleDiff(heading_col[b + i], heading_col[b + i - 1]);
       }
-      std::vector<double> mean[3];
-      for (int k = 0; k < 3; ++k) mean[k] = RunningMean(ch[k], half);
-      for (std::size_t i = 0; i < len; ++i) {
-        // w = (roll, pitch, yaw) deviations; the kinds' axes are the unit
-        // vectors in the order pitch, roll, yaw of ManeuverKind.
-        piece.w[i] = {ch[0][i] - mean[0][i], ch[1][i] - mean[1][i],
-                      ch[2][i] - mean[2][i]};
-        piece.axis[i] = {Vec3{0, 1, 0}, Vec3{1, 0, 0}, Vec3{0, 0, 1}};
-        piece.heading_deg[i] = ch[2][i];
-      }
+      const double* ch[3] = {roll_col + b, pitch_col + b, unwrapped.data()};
+      // w = (roll, pitch, yaw) deviations; the kinds' axes are the unit
+      // vectors in the order pitch, roll, yaw of ManeuverKind.
+      RunningMeans<3>(
+          len, half, [&ch](std::size_t i, std::size_t k) { return ch[k][i]; },
+          [&](std::size_t i, const double* mean) {
+            piece.w[i] = {ch[0][i] - mean[0], ch[1][i] - mean[1],
+                          ch[2][i] - mean[2]};
+          });
+      piece.axis.clear();
+      piece.fixed_axis = {Vec3{0, 1, 0}, Vec3{1, 0, 0}, Vec3{0, 0, 1}};
     } else {
-      std::vector<double> comp[3];
-      for (int k = 0; k < 3; ++k) {
-        std::vector<double> c(len);
-        for (std::size_t i = 0; i < len; ++i) c[i] = raw[b + i][k];
-        comp[k] = RunningMean(c, half);
-      }
+      piece.axis.resize(len);
       double prev_heading = 0;
-      for (std::size_t i = 0; i < len; ++i) {
-        Vec3 c0 = {comp[0][i], comp[1][i], comp[2][i]};
+      const Vec3* c_raw = raw.data() + b;
+      RunningMeans<3>(
+          len, half,
+          [c_raw](std::size_t i, std::size_t k) { return c_raw[i][k]; },
+          [&](std::size_t i, const double* mean) {
+        Vec3 c0 = {mean[0], mean[1], mean[2]};
         const double norm = std::sqrt(Dot(c0, c0));
         for (double& v : c0) v /= norm;
-        const Vec3& c = raw[b + i];
+        const Vec3& c = c_raw[i];
         const Vec3 dc = {c[0] - c0[0], c[1] - c0[1], c[2] - c0[2]};
         const Vec3 w = Cross(dc, c0);
         piece.w[i] = {w[0] * kDeg, w[1] * kDeg, w[2] * kDeg};
@@ -549,7 +583,7 @@ ManeuverDetection DetectManeuvers(const io::Table& recording,
         piece.heading_deg[i] =
             i == 0 ? h : prev_heading + AngleDiff(h, prev_heading);
         prev_heading = piece.heading_deg[i];
-      }
+      });
     }
     SegmentPiece(piece,
                  attitude ? options.min_rms_deg : options.min_rms_fluxgate_deg,

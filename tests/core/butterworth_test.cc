@@ -333,6 +333,51 @@ TEST(BandPass, OutputMayOverwriteItsInput) {
   EXPECT_EQ(x, expected);
 }
 
+// FilterChannels promises Filter's arithmetic per channel; its reference
+// is therefore Filter itself (checked against SciPy above), bit for bit.
+TEST(BandPass, ChannelsFilteredTogetherEqualEachFilteredAloneBitForBit) {
+  for (const double rate : {10.0, 100.0}) {
+    const BandPass filter(BandPassOptions{}, rate);
+    // 11 channels (one full group of lanes and a partial one) in rows of
+    // 13 values, each channel a different tone on a different offset.
+    constexpr std::size_t kChannels = 11, kStride = 13, kN = 3000;
+    std::vector<double> rows(kN * kStride);
+    for (std::size_t i = 0; i < kN; ++i) {
+      for (std::size_t c = 0; c < kStride; ++c) {
+        rows[i * kStride + c] = 50000.0 * (c % 3) +
+                                std::sin((0.01 + 0.03 * c) * i) + 1e-3 * i;
+      }
+    }
+    const std::size_t begin = 77, end = 2901;
+    std::vector<double> out(kChannels * (end - begin), -1.0);
+    filter.FilterChannels(rows.data(), kN, kStride, kChannels, begin, end,
+                          out.data(), end - begin);
+    for (std::size_t c = 0; c < kChannels; ++c) {
+      std::vector<double> x(kN);
+      for (std::size_t i = 0; i < kN; ++i) x[i] = rows[i * kStride + c];
+      const std::vector<double> alone = filter.Filter(x);
+      for (std::size_t i = begin; i < end; ++i) {
+        ASSERT_EQ(out[c * (end - begin) + i - begin], alone[i])
+            << "rate " << rate << " channel " << c << " sample " << i;
+      }
+    }
+  }
+}
+
+TEST(BandPass, ChannelsRefuseNonFiniteAndShortInputLikeFilter) {
+  const BandPass filter(BandPassOptions{}, 10.0);
+  std::vector<double> rows(2 * 100, 1.0);
+  std::vector<double> out(2 * 100);
+  rows[2 * 40 + 1] = std::nan("");
+  EXPECT_THROW(filter.FilterChannels(rows.data(), 100, 2, 2, 0, 100,
+                                     out.data(), 100),
+               std::invalid_argument);
+  const std::size_t short_n = filter.min_length() - 1;
+  EXPECT_THROW(filter.FilterChannels(rows.data(), short_n, 1, 1, 0, short_n,
+                                     out.data(), short_n),
+               std::invalid_argument);
+}
+
 TEST(BandPass, GapsSplitTheSignalIntoIndependentlyFilteredRuns) {
   const BandPass filter(BandPassOptions{}, 10.0);
   std::vector<double> x(400);

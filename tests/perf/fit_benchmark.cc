@@ -4,6 +4,10 @@
 // simulated 20-minute compensation box at 10 Hz and at 100 Hz, and for
 // about one million samples (the 100 Hz box repeated end to end).
 //
+// The default runs maneuver detection on a second thread (FitOptions::
+// threads = 2); the *OneThread variants keep everything on one core. CPU
+// time counts both threads.
+//
 //   build-*/tests/fit_benchmark --benchmark_min_time=1
 #include <benchmark/benchmark.h>
 
@@ -50,9 +54,11 @@ const io::Table& Million() {
   return *table;
 }
 
-void Run(benchmark::State& state, const io::Table& table) {
+void Run(benchmark::State& state, const io::Table& table, int threads = 2) {
+  FitOptions options;
+  options.threads = threads;
   for (auto _ : state) {
-    FitResult fit = FitModel(table);
+    FitResult fit = FitModel(table, options);
     if (!fit.usable) state.SkipWithError(fit.message.c_str());
     benchmark::DoNotOptimize(fit.values.data());
   }
@@ -66,10 +72,17 @@ void Run(benchmark::State& state, const io::Table& table) {
 void BM_FitBox10Hz(benchmark::State& state) { Run(state, Box(10.0)); }
 void BM_FitBox100Hz(benchmark::State& state) { Run(state, Box(100.0)); }
 void BM_FitMillionSamples(benchmark::State& state) { Run(state, Million()); }
+// Everything on one thread (FitOptions::threads = 1): the single-core figure.
+void BM_FitBox100HzOneThread(benchmark::State& state) { Run(state, Box(100.0), 1); }
+void BM_FitMillionSamplesOneThread(benchmark::State& state) {
+  Run(state, Million(), 1);
+}
 
 BENCHMARK(BM_FitBox10Hz)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(BM_FitBox100Hz)->Unit(benchmark::kMillisecond)->UseRealTime();
 BENCHMARK(BM_FitMillionSamples)->Unit(benchmark::kMillisecond)->UseRealTime()->Iterations(3);
+BENCHMARK(BM_FitBox100HzOneThread)->Unit(benchmark::kMillisecond)->UseRealTime();
+BENCHMARK(BM_FitMillionSamplesOneThread)->Unit(benchmark::kMillisecond)->UseRealTime()->Iterations(3);
 
 }  // namespace
 }  // namespace fluxtrim::core
