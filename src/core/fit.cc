@@ -472,7 +472,10 @@ LagResult EstimateLag(const Work& w, const std::vector<double>& band_full,
   problem.SetParameterLowerBound(&lag, 0, -max_lag_samples - 1);
   problem.SetParameterUpperBound(&lag, 0, max_lag_samples + 1);
   ceres::Solver::Options options;
-  options.linear_solver_type = ceres::DENSE_QR;
+  // Normal equations of the (rows x p+1) Jacobian: a few times cheaper than
+  // its QR, and sound here (equilibrated columns, condition ~1e2; each
+  // Gauss-Newton step is re-evaluated against the exact residual).
+  options.linear_solver_type = ceres::DENSE_NORMAL_CHOLESKY;
   options.max_num_iterations = 50;
   options.function_tolerance = 1e-12;
   options.parameter_tolerance = 1e-10;
