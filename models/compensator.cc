@@ -22,7 +22,7 @@ double CatmullRom(double p0, double p1, double p2, double p3, double t) {
 }  // namespace
 
 Compensator::Compensator(const CompensatorModel& model)
-    : model_(model), engine_(model.engine) {
+    : model_(model), sensor_(model.sensor), engine_(model.engine) {
   if (model_.coefficients.size() != engine_.term_count()) {
     throw std::invalid_argument("model has " +
                                 std::to_string(model_.coefficients.size()) +
@@ -77,7 +77,7 @@ int Compensator::Push(double time, const double b[3], double f,
                       double temp_c, CompensatedSample* out) {
   double field[3] = {b[0], b[1], b[2]};
   if (model_.has_sensor) {
-    const Vec3 v = SensorCorrect(model_.sensor, {b[0], b[1], b[2]}, temp_c);
+    const Vec3 v = sensor_({b[0], b[1], b[2]}, temp_c);
     field[0] = v.x;
     field[1] = v.y;
     field[2] = v.z;

@@ -112,6 +112,7 @@ class Compensator {
   }
 
   CompensatorModel model_;
+  SensorCorrector sensor_;  // model_.sensor, trigonometry done once
   TermEngine engine_;
   std::vector<TermEngine::Output> engine_out_;
   std::vector<std::uint8_t> attitude_outside_;  // by index & ring_mask_

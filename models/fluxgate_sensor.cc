@@ -62,27 +62,37 @@ Vec3 SensorRaw(const SensorCalibration& cal, const Vec3& b_body,
   return {s[0] * p[0] + o[0], s[1] * p[1] + o[1], s[2] * p[2] + o[2]};
 }
 
-Vec3 SensorCorrect(const SensorCalibration& cal, const Vec3& raw,
-                   double temp_c) {
+SensorCorrector::SensorCorrector(const SensorCalibration& cal)
+    : cal_(cal),
+      sin_u1_(std::sin(cal.nonorthogonality_rad[0])),
+      cos_u1_(std::cos(cal.nonorthogonality_rad[0])),
+      sin_u2_(std::sin(cal.nonorthogonality_rad[1])),
+      cos_u2_(std::cos(cal.nonorthogonality_rad[1])),
+      sin_u3_(std::sin(cal.nonorthogonality_rad[2])),
+      cos_u3_(std::cos(cal.nonorthogonality_rad[2])) {
+  Rotation(cal.misalignment_rad, r_);
+}
+
+Vec3 SensorCorrector::operator()(const Vec3& raw, double temp_c) const {
   double s[3], o[3];
-  Gains(cal, temp_c, s, o);
+  Gains(cal_, temp_c, s, o);
   const double p[3] = {(raw.x - o[0]) / s[0], (raw.y - o[1]) / s[1],
                        (raw.z - o[2]) / s[2]};
-  const double u1 = cal.nonorthogonality_rad[0];
-  const double u2 = cal.nonorthogonality_rad[1];
-  const double u3 = cal.nonorthogonality_rad[2];
   // Forward substitution through the lower-triangular P.
   double v[3];
   v[0] = p[0];
-  v[1] = (p[1] - std::sin(u1) * v[0]) / std::cos(u1);
-  v[2] = (p[2] - std::sin(u2) * v[0] - std::sin(u3) * std::cos(u2) * v[1]) /
-         (std::cos(u2) * std::cos(u3));
-  double r[3][3];
-  Rotation(cal.misalignment_rad, r);
+  v[1] = (p[1] - sin_u1_ * v[0]) / cos_u1_;
+  v[2] = (p[2] - sin_u2_ * v[0] - sin_u3_ * cos_u2_ * v[1]) /
+         (cos_u2_ * cos_u3_);
   // R is orthogonal: its inverse is its transpose.
-  return {r[0][0] * v[0] + r[1][0] * v[1] + r[2][0] * v[2],
-          r[0][1] * v[0] + r[1][1] * v[1] + r[2][1] * v[2],
-          r[0][2] * v[0] + r[1][2] * v[1] + r[2][2] * v[2]};
+  return {r_[0][0] * v[0] + r_[1][0] * v[1] + r_[2][0] * v[2],
+          r_[0][1] * v[0] + r_[1][1] * v[1] + r_[2][1] * v[2],
+          r_[0][2] * v[0] + r_[1][2] * v[1] + r_[2][2] * v[2]};
+}
+
+Vec3 SensorCorrect(const SensorCalibration& cal, const Vec3& raw,
+                   double temp_c) {
+  return SensorCorrector(cal)(raw, temp_c);
 }
 
 }  // namespace fluxtrim::models

@@ -50,4 +50,17 @@ Vec3 SensorRaw(const SensorCalibration& cal, const Vec3& b_body,
 Vec3 SensorCorrect(const SensorCalibration& cal, const Vec3& raw,
                    double temp_c = 20.0);
 
+// SensorCorrect with its trigonometry done once, for per-sample paths
+// (Compensator): the same arithmetic, so the same bits as SensorCorrect.
+class SensorCorrector {
+ public:
+  explicit SensorCorrector(const SensorCalibration& cal);
+  Vec3 operator()(const Vec3& raw, double temp_c) const;
+
+ private:
+  SensorCalibration cal_;
+  double sin_u1_, cos_u1_, sin_u2_, cos_u2_, sin_u3_, cos_u3_;
+  double r_[3][3];  // misalignment R
+};
+
 }  // namespace fluxtrim::models

@@ -185,21 +185,28 @@ int TermEngine::Emit(std::size_t position, bool derivative_valid,
   o.bt = p.bt;
   o.f = p.f;
   o.flags = p.flags;
-  for (int i = 0; i < 3; ++i) {
-    o.c[i] = p.c[i];
-    o.dc[i] = 0.0;
-  }
+  // Local sums: the output may alias nothing the compiler can prove, so
+  // accumulating in it would store on every window sample.
+  double dc0 = 0.0, dc1 = 0.0, dc2 = 0.0;
   if (derivative_valid) {
-    const int k = options_.half_width;
-    for (int j = -k; j <= k; ++j) {
-      const Pending& q = ring_[Slot(position + static_cast<std::size_t>(j + k) -
-                                    static_cast<std::size_t>(k))];
-      const double w = weights_[static_cast<std::size_t>(j + k)];
-      for (int i = 0; i < 3; ++i) o.dc[i] += w * q.c[i];
+    const std::size_t first = position - static_cast<std::size_t>(options_.half_width);
+    const std::size_t width = weights_.size();  // 2k + 1
+    for (std::size_t j = 0; j < width; ++j) {
+      const Pending& q = ring_[Slot(first + j)];
+      const double w = weights_[j];
+      dc0 += w * q.c[0];
+      dc1 += w * q.c[1];
+      dc2 += w * q.c[2];
     }
   } else {
     o.flags |= kFlagDerivativeInvalid;
   }
+  o.c[0] = p.c[0];
+  o.c[1] = p.c[1];
+  o.c[2] = p.c[2];
+  o.dc[0] = dc0;
+  o.dc[1] = dc1;
+  o.dc[2] = dc2;
   double* row = &rows_[static_cast<std::size_t>(next_row_++) * term_count_];
   const double* aux =
       aux_count_ ? &aux_store_[Slot(position) * aux_count_] : nullptr;
