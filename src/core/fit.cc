@@ -1406,11 +1406,19 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
 
   result.band_before.assign(w.n, kNaN);
   result.band_after.assign(w.n, kNaN);
-  const Eigen::VectorXd fitted = w.a * solution.x;
-  for (std::size_t r = 0; r < n_fit; ++r) {
-    const std::size_t i = w.fit_rows[r];
-    result.band_before[i] = y(static_cast<long>(r));
-    result.band_after[i] = y(static_cast<long>(r)) - fitted(static_cast<long>(r));
+  {
+    // A x in chunks of rows (no full-length temporary).
+    constexpr long kChunk = 4096;
+    Eigen::VectorXd fitted(kChunk);
+    for (long r0 = 0; r0 < static_cast<long>(n_fit); r0 += kChunk) {
+      const long len = std::min(kChunk, static_cast<long>(n_fit) - r0);
+      fitted.head(len).noalias() = w.a.middleRows(r0, len) * solution.x;
+      for (long r = r0; r < r0 + len; ++r) {
+        const std::size_t i = w.fit_rows[static_cast<std::size_t>(r)];
+        result.band_before[i] = y(r);
+        result.band_after[i] = y(r) - fitted(r - r0);
+      }
+    }
   }
   result.maneuvers = ManeuverPeakToPeak(result.time, result.band_before,
                                         result.band_after, maneuvers);
@@ -1442,15 +1450,31 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
         }
         windows.emplace_back(t0 - trim_s, t1 + trim_s);
       }
-      std::vector<std::vector<long>> block(g_count + 1);
+      // Block of each fitted row (g_count: none), and each block as its
+      // contiguous stretches [begin, end) of rows (blocks are time windows).
+      std::vector<std::uint32_t> owner(n_fit);
       for (std::size_t r = 0; r < n_fit; ++r) {
         const double t = (*w.time)[w.fit_rows[r]];
         std::size_t b = g_count;
         for (std::size_t g = 0; g < g_count && b == g_count; ++g) {
           if (t >= windows[g].first && t <= windows[g].second) b = g;
         }
-        block[b].push_back(static_cast<long>(r));
+        owner[r] = static_cast<std::uint32_t>(b);
       }
+      std::vector<std::vector<std::pair<long, long>>> stretches(g_count + 1);
+      for (std::size_t r0 = 0; r0 < n_fit;) {
+        std::size_t r1 = r0 + 1;
+        while (r1 < n_fit && owner[r1] == owner[r0]) ++r1;
+        stretches[owner[r0]].emplace_back(static_cast<long>(r0), static_cast<long>(r1));
+        r0 = r1;
+      }
+      auto block_of = [&](std::size_t b) {
+        std::vector<long> rows;
+        for (const auto& [r0, r1] : stretches[b]) {
+          for (long r = r0; r < r1; ++r) rows.push_back(r);
+        }
+        return rows;
+      };
       // Gram matrix, A^T y and ||y||^2 of each block, summed over its
       // contiguous stretches of rows (blocks are time windows).
       const long p = static_cast<long>(w.p);
@@ -1459,22 +1483,15 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
       std::vector<double> yy(g_count + 1, 0.0);
       std::vector<long> block_rows(g_count + 1, 0);
       {
-        std::vector<std::size_t> owner(n_fit, g_count);
-        for (std::size_t b = 0; b < g_count; ++b) {
-          for (long r : block[b]) owner[static_cast<std::size_t>(r)] = b;
-        }
-        std::size_t r0 = 0;
-        while (r0 < n_fit) {
-          std::size_t r1 = r0 + 1;
-          while (r1 < n_fit && owner[r1] == owner[r0]) ++r1;
-          const std::size_t b = owner[r0];
-          const long at = static_cast<long>(r0), len = static_cast<long>(r1 - r0);
-          gram[b].selfadjointView<Eigen::Lower>().rankUpdate(
-              w.a.middleRows(at, len).transpose());
-          aty[b].noalias() += w.a.middleRows(at, len).transpose() * y.segment(at, len);
-          yy[b] += y.segment(at, len).squaredNorm();
-          block_rows[b] += len;
-          r0 = r1;
+        for (std::size_t b = 0; b <= g_count; ++b) {
+          for (const auto& [r0, r1] : stretches[b]) {
+            const long at = r0, len = r1 - r0;
+            gram[b].selfadjointView<Eigen::Lower>().rankUpdate(
+                w.a.middleRows(at, len).transpose());
+            aty[b].noalias() += w.a.middleRows(at, len).transpose() * y.segment(at, len);
+            yy[b] += y.segment(at, len).squaredNorm();
+            block_rows[b] += len;
+          }
         }
         for (Eigen::MatrixXd& g : gram) {
           g.triangularView<Eigen::StrictlyUpper>() = g.transpose();
@@ -1487,12 +1504,13 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
         if (!compressed.empty()) return;
         compressed.resize(g_count + 1);
         for (std::size_t b = 0; b <= g_count; ++b) {
-          const long m = static_cast<long>(block[b].size());
+          const std::vector<long> block = block_of(b);
+          const long m = static_cast<long>(block.size());
           Eigen::MatrixXd ab(m, p);
           Eigen::VectorXd yb(m);
           for (long r = 0; r < m; ++r) {
-            ab.row(r) = w.a.row(block[b][static_cast<std::size_t>(r)]);
-            yb(r) = y(block[b][static_cast<std::size_t>(r)]);
+            ab.row(r) = w.a.row(block[static_cast<std::size_t>(r)]);
+            yb(r) = y(block[static_cast<std::size_t>(r)]);
           }
           if (m >= p) {
             compressed[b] = Compress(ab, yb);
@@ -1504,6 +1522,7 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
           }
         }
       };
+      std::vector<double> after(w.n, kNaN);  // held-out residual, one fold at a time
       for (std::size_t g = 0; g < g_count; ++g) {
         CrossValidationFold fold;
         fold.heading_deg = groups[g].heading_deg;
@@ -1552,14 +1571,20 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
           const Solution s = SolveWith(w, Augment(train, w, held), held,
                                        solution.lambda, false);
           if (s.ok) {
-            std::vector<double> after(w.n, kNaN);
-            for (long r : block[g]) {
-              after[w.fit_rows[static_cast<std::size_t>(r)]] =
-                  y(r) - w.a.row(r).dot(s.x);
+            for (const auto& [r0, r1] : stretches[g]) {
+              for (long r = r0; r < r1; ++r) {
+                after[w.fit_rows[static_cast<std::size_t>(r)]] =
+                    y(r) - w.a.row(r).dot(s.x);
+              }
             }
             fold.fom_nT = Fom(ManeuverPeakToPeak(result.time, result.band_before,
                                                  after, held_out[g]),
                               true);
+            for (const auto& [r0, r1] : stretches[g]) {  // back to all NaN
+              for (long r = r0; r < r1; ++r) {
+                after[w.fit_rows[static_cast<std::size_t>(r)]] = kNaN;
+              }
+            }
           }
         }
         result.cross_validation.push_back(fold);
