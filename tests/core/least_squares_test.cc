@@ -185,6 +185,81 @@ TEST(LeastSquares, CompressedDesignGivesTheSameSystemAsCompress) {
               1e-10 * direct.y_sum_squares);
 }
 
+// DesignCompressor's reference is the Householder compression above (itself
+// checked against NumPy): R is unique up to the signs of its rows, so R^T R,
+// R^T z and the outside part are compared. Semi-normal equations lose about
+// cond^2 * eps relative (Bjorck 1996, sec. 2.2.4): with cond ~ 10 that is
+// ~1e-14; 1e-11 leaves margin for the sums over 5000 rows.
+constexpr double kSemiNormalRelTol = 1e-11;
+
+void RandomDesign(long n, long p, unsigned seed, Eigen::MatrixXd* a,
+                  Eigen::VectorXd* y) {
+  std::mt19937 rng(seed);
+  std::normal_distribution<double> g(0.0, 1.0);
+  *a = Eigen::MatrixXd(n, p);
+  *y = Eigen::VectorXd(n);
+  for (long i = 0; i < n; ++i) {
+    for (long j = 0; j < p; ++j) (*a)(i, j) = g(rng);
+    (*y)(i) = g(rng);
+  }
+  *y += *a * Eigen::VectorXd::LinSpaced(p, -2.0, 3.0);
+}
+
+void ExpectSameSystem(const CompressedSystem& ours, const CompressedSystem& ref,
+                      double tol) {
+  const Eigen::MatrixXd g_ours = ours.r.transpose() * ours.r;
+  const Eigen::MatrixXd g_ref = ref.r.transpose() * ref.r;
+  EXPECT_LT((g_ours - g_ref).norm(), tol * g_ref.norm());
+  const Eigen::VectorXd h_ours = ours.r.transpose() * ours.z;
+  const Eigen::VectorXd h_ref = ref.r.transpose() * ref.z;
+  EXPECT_LT((h_ours - h_ref).norm(), tol * h_ref.norm());
+  EXPECT_NEAR(ours.outside_sum_squares, ref.outside_sum_squares,
+              tol * ref.outside_sum_squares);
+  EXPECT_EQ(ours.rows, ref.rows);
+  EXPECT_DOUBLE_EQ(ours.y_sum_squares, ref.y_sum_squares);
+}
+
+TEST(LeastSquares, SemiNormalCompressionOfAWellConditionedDesignEqualsHouseholder) {
+  Eigen::MatrixXd a;
+  Eigen::VectorXd y;
+  RandomDesign(5000, 8, 11u, &a, &y);
+  const DesignCompressor compressor(a);
+  EXPECT_TRUE(compressor.semi_normal());
+  ExpectSameSystem(compressor.Compress(y), CompressedDesign(a).Compress(y),
+                   kSemiNormalRelTol);
+}
+
+TEST(LeastSquares, IllConditionedDesignFallsBackToHouseholderExactly) {
+  Eigen::MatrixXd a;
+  Eigen::VectorXd y;
+  RandomDesign(3000, 6, 12u, &a, &y);
+  a.col(5) = a.col(4) + 1e-6 * a.col(0);  // cond ~1e6 > 1e3
+  const DesignCompressor compressor(a);
+  EXPECT_FALSE(compressor.semi_normal());
+  const CompressedSystem ours = compressor.Compress(y);
+  const CompressedSystem ref = CompressedDesign(a).Compress(y);
+  EXPECT_EQ(ours.r, ref.r);
+  EXPECT_EQ(ours.z, ref.z);
+  EXPECT_EQ(ours.outside_sum_squares, ref.outside_sum_squares);
+}
+
+TEST(LeastSquares, ZeroColumnsGetZeroRowsAndTheRestMatchesTheSubset) {
+  Eigen::MatrixXd a;
+  Eigen::VectorXd y;
+  RandomDesign(4000, 5, 13u, &a, &y);
+  a.col(2).setZero();  // e.g. a term held as not excited
+  const DesignCompressor compressor(a);
+  EXPECT_TRUE(compressor.semi_normal());
+  const CompressedSystem ours = compressor.Compress(y);
+  EXPECT_EQ(ours.r.row(2).norm(), 0.0);
+  EXPECT_EQ(ours.r.col(2).norm(), 0.0);
+  EXPECT_EQ(ours.z(2), 0.0);
+  const std::vector<int> kept = {0, 1, 3, 4};
+  Eigen::MatrixXd as(a.rows(), 4);
+  for (int j = 0; j < 4; ++j) as.col(j) = a.col(kept[static_cast<std::size_t>(j)]);
+  ExpectSameSystem(SubSystem(ours, kept), Compress(as, y), kSemiNormalRelTol);
+}
+
 TEST(LeastSquares, SubSystemEqualsCompressingTheColumnSubset) {
   Eigen::MatrixXd a;
   Eigen::VectorXd y, truth;
