@@ -146,13 +146,20 @@ void AddManeuversAndExcitation(const io::Table& recording,
   const std::vector<std::string> undetermined = ex.UndeterminedTerms();
   if (!undetermined.empty()) {
     std::string list;
-    for (const std::string& t : undetermined)
+    bool physical = false, aux = false;
+    for (const std::string& t : undetermined) {
       list += (list.empty() ? "" : ", ") + t;
+      (t.rfind("aux_", 0) == 0 ? aux : physical) = true;
+    }
+    std::string hint;
+    if (physical) hint = "fly pitch, roll and yaw at each of four headings";
+    if (aux) {
+      hint += std::string(hint.empty() ? "" : "; ") +
+              "vary the aux channels during the maneuvers";
+    }
     summary->add_warnings(std::to_string(undetermined.size()) +
                           " term(s) not determined by this recording: " + list +
-                          "; a fit holds them at 0 (fly pitch, roll and yaw at "
-                          "each of four headings; vary aux channels during the "
-                          "maneuvers)");
+                          "; a fit holds them at 0 (" + hint + ")");
   }
 }
 
