@@ -18,11 +18,9 @@
 #include <ceres/ceres.h>
 #include <ceres/cubic_interpolation.h>
 
-#if defined(__linux__)
-#include <sys/mman.h>
-#endif
 
 #include "io/error.h"
+#include "src/core/huge_pages.h"
 #include "src/core/lag.h"
 #include "src/core/least_squares.h"
 #include "src/core/ridge.h"
@@ -86,29 +84,6 @@ class StageClock {
   std::clock_t cpu_;
 };
 
-// Asks the kernel to back a large, not yet touched buffer with transparent
-// huge pages (as NumPy does for its large arrays): one page fault per 2 MB
-// instead of per 4 kB. On a virtual machine a 4 kB fault costs microseconds,
-// which made first touching the term matrix cost more than computing it.
-// Advice only: without Linux or THP nothing changes, and the values are the
-// same either way.
-void AdviseHugePages(void* data, std::size_t bytes) {
-#if defined(__linux__) && defined(MADV_HUGEPAGE)
-  constexpr std::uintptr_t kHuge = std::uintptr_t{1} << 21;
-  if (bytes < 2 * kHuge) return;
-  const std::uintptr_t begin =
-      (reinterpret_cast<std::uintptr_t>(data) + kHuge - 1) & ~(kHuge - 1);
-  const std::uintptr_t end =
-      (reinterpret_cast<std::uintptr_t>(data) + bytes) & ~(kHuge - 1);
-  if (end > begin) {
-    madvise(reinterpret_cast<void*>(begin), end - begin, MADV_HUGEPAGE);
-  }
-#else
-  (void)data;
-  (void)bytes;
-#endif
-}
-
 double Median(std::vector<double> v) {
   if (v.empty()) return kNaN;
   const std::size_t m = v.size() / 2;
@@ -167,7 +142,7 @@ struct Work {
 // Band-passes x over each run; returns the full-length series (NaN outside
 // runs).
 std::vector<double> BandPassRuns(const Work& w, const std::vector<double>& x) {
-  std::vector<double> out(w.n, kNaN);
+  std::vector<double> out = HugeVector(w.n, kNaN);
   for (const Run& run : w.runs) {
     w.band->Filter(x.data() + run.begin, run.end - run.begin,
                    out.data() + run.begin);
@@ -756,6 +731,8 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
     aux_rms.push_back(c ? std::sqrt(s / static_cast<double>(c)) : 0.0);
   }
   result.samples = w.n;
+  result.time.reserve(w.n);
+  AdviseHugePages(result.time.data(), w.n * sizeof(double));
   result.time = *w.time;
   if (w.n > 0) {
     result.start_s = w.time->front();
@@ -835,7 +812,7 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   // ---- terms -------------------------------------------------------------
   w.tm = models::BuildTermMatrix(result.engine, w.n, w.time->data(), bx.data(),
                                  by.data(), bz.data(), f, aux);
-  w.field.resize(w.n);
+  w.field = HugeVector(w.n, 0.0);
   for (std::size_t i = 0; i < w.n; ++i) w.field[i] = w.scalar ? f[i] : w.tm.bt[i];
 
   clock.Mark("terms");
@@ -1197,7 +1174,10 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
 
   // The measured field aligned by the current lag, and the same with the
   // outliers' excess removed (robust loss; otherwise identical).
-  std::vector<double> aligned = w.field;
+  std::vector<double> aligned;
+  aligned.reserve(w.n);
+  AdviseHugePages(aligned.data(), w.n * sizeof(double));
+  aligned = w.field;
   // (Only the robust loss cleans; without it `cleaned` stays empty and the
   // aligned field is used.)
   std::vector<double> cleaned;
@@ -1383,7 +1363,7 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   }
 
   // ---- series and metrics --------------------------------------------------
-  result.interference.assign(w.n, kNaN);
+  HugeAssign(&result.interference, w.n, kNaN);
   double h_sum = 0;
   std::size_t h_count = 0;
   for (std::size_t i = 0; i < w.n; ++i) {
@@ -1404,8 +1384,8 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   }
   result.interference_mean_nT = h_count ? h_sum / static_cast<double>(h_count) : 0.0;
 
-  result.band_before.assign(w.n, kNaN);
-  result.band_after.assign(w.n, kNaN);
+  HugeAssign(&result.band_before, w.n, kNaN);
+  HugeAssign(&result.band_after, w.n, kNaN);
   {
     // A x in chunks of rows (no full-length temporary).
     constexpr long kChunk = 4096;
@@ -1522,7 +1502,7 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
           }
         }
       };
-      std::vector<double> after(w.n, kNaN);  // held-out residual, one fold at a time
+      std::vector<double> after = HugeVector(w.n, kNaN);  // held-out residual, one fold at a time
       for (std::size_t g = 0; g < g_count; ++g) {
         CrossValidationFold fold;
         fold.heading_deg = groups[g].heading_deg;

@@ -6,6 +6,8 @@
 
 #include <ceres/cubic_interpolation.h>
 
+#include "src/core/huge_pages.h"
+
 namespace fluxtrim::core {
 
 std::vector<SampleRun> ContiguousRuns(const std::vector<double>& time,
@@ -46,7 +48,8 @@ std::vector<double> ShiftByLag(const std::vector<double>& time,
                                double sample_rate_hz, double gap_factor) {
   const std::vector<SampleRun> runs =
       ContiguousRuns(time, f, sample_rate_hz, gap_factor);
-  std::vector<double> out(f.size(), std::numeric_limits<double>::quiet_NaN());
+  std::vector<double> out =
+      HugeVector(f.size(), std::numeric_limits<double>::quiet_NaN());
   const double shift = lag_s * sample_rate_hz;
   for (const SampleRun& run : runs) {
     if (shift == 0.0) {

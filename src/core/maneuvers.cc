@@ -12,6 +12,7 @@
 #include <stdexcept>
 
 #include "io/error.h"
+#include "src/core/huge_pages.h"
 
 namespace fluxtrim::core {
 namespace {
@@ -168,8 +169,8 @@ void SegmentPiece(const Piece& piece, double rms_threshold_deg,
                                        {0, 1}, {0, 2}, {1, 2}};
   // Energy along each kind's axis, and the per-sample label.
   std::array<std::vector<double>, kKinds> energy;
-  for (auto& e : energy) e.assign(n, 0.0);
-  std::vector<int> label(n, kNone);
+  for (auto& e : energy) e = HugeVector(n, 0.0);
+  std::vector<int> label = HugeVector(n, kNone);
   // Samples whose kind was decided by amplitude, not direction.
   std::vector<char> by_amplitude(n, 0);
   const double typical[kKinds] = {options.typical_pitch_deg,
@@ -534,7 +535,9 @@ ManeuverDetection DetectManeuvers(const io::Table& recording,
     }
     piece.t = time.data() + b;
     piece.n = len;
+    if (piece.w.capacity() < len) piece.w = HugeVector(len, Vec3{});
     piece.w.resize(len);
+    if (piece.heading_deg.capacity() < len) piece.heading_deg = HugeVector(len, 0.0);
     piece.heading_deg.resize(len);
     if (attitude) {
       // Unwrap heading so that 359 -> 1 is a 2 deg step.
