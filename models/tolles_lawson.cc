@@ -217,9 +217,19 @@ int TermEngine::Emit(std::size_t position, bool derivative_valid,
       aux_count_ ? &aux_store_[Slot(position) * aux_count_] : nullptr;
   FillTermRow(options_.terms, o.c, o.dc, o.bt, aux, row);
   o.row = row;
-  double h = 0.0;
-  for (std::size_t t = 0; t < term_count_; ++t) h += row[t] * coefficients_[t];
-  o.interference = h;
+  // Four partial sums: one serial chain of additions was latency bound.
+  // Every path (apply, stream, runtime) computes it here, so they agree.
+  const double* coef = coefficients_.data();
+  double h0 = 0.0, h1 = 0.0, h2 = 0.0, h3 = 0.0;
+  std::size_t t = 0;
+  for (; t + 4 <= term_count_; t += 4) {
+    h0 += row[t] * coef[t];
+    h1 += row[t + 1] * coef[t + 1];
+    h2 += row[t + 2] * coef[t + 2];
+    h3 += row[t + 3] * coef[t + 3];
+  }
+  for (; t < term_count_; ++t) h0 += row[t] * coef[t];
+  o.interference = (h0 + h1) + (h2 + h3);
   return 1;
 }
 
