@@ -6,9 +6,7 @@
 #include <sstream>
 #include <stdexcept>
 
-#if defined(__linux__)
-#include <sys/mman.h>
-#endif
+#include "models/huge_pages.h"
 
 namespace fluxtrim::models {
 namespace {
@@ -308,33 +306,6 @@ int TermEngine::Flush(Output* out) {
   next_row_ = 0;
   return FlushSegment(out, 0);
 }
-
-namespace {
-
-// Asks the kernel to back a large, not yet touched buffer with transparent
-// huge pages (as NumPy does for its large arrays): one page fault per 2 MB
-// instead of per 4 kB. On a virtual machine a 4 kB fault costs microseconds,
-// which made first touching the term matrix cost more than computing it.
-// Advice only: without Linux or THP nothing changes, and the values are the
-// same either way.
-void AdviseHugePages(void* data, std::size_t bytes) {
-#if defined(__linux__) && defined(MADV_HUGEPAGE)
-  constexpr std::uintptr_t kHuge = std::uintptr_t{1} << 21;
-  if (bytes < 2 * kHuge) return;
-  const std::uintptr_t begin =
-      (reinterpret_cast<std::uintptr_t>(data) + kHuge - 1) & ~(kHuge - 1);
-  const std::uintptr_t end =
-      (reinterpret_cast<std::uintptr_t>(data) + bytes) & ~(kHuge - 1);
-  if (end > begin) {
-    madvise(reinterpret_cast<void*>(begin), end - begin, MADV_HUGEPAGE);
-  }
-#else
-  (void)data;
-  (void)bytes;
-#endif
-}
-
-}  // namespace
 
 TermMatrix BuildTermMatrix(const TermEngine::Options& options, std::size_t n,
                            const double* time, const double* bx,

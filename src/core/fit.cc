@@ -20,12 +20,16 @@
 
 
 #include "io/error.h"
-#include "src/core/huge_pages.h"
+#include "models/huge_pages.h"
 #include "src/core/lag.h"
 #include "src/core/least_squares.h"
 #include "src/core/ridge.h"
 
 namespace fluxtrim::core {
+
+using models::AdviseHugePages;
+using models::HugeAssign;
+using models::HugeVector;
 namespace {
 
 constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();

@@ -6,9 +6,13 @@
 
 #include <ceres/cubic_interpolation.h>
 
-#include "src/core/huge_pages.h"
+#include "models/huge_pages.h"
 
 namespace fluxtrim::core {
+
+using models::AdviseHugePages;
+using models::HugeAssign;
+using models::HugeVector;
 
 std::vector<SampleRun> ContiguousRuns(const std::vector<double>& time,
                                       const std::vector<double>& f,

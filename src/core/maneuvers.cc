@@ -12,9 +12,13 @@
 #include <stdexcept>
 
 #include "io/error.h"
-#include "src/core/huge_pages.h"
+#include "models/huge_pages.h"
 
 namespace fluxtrim::core {
+
+using models::AdviseHugePages;
+using models::HugeAssign;
+using models::HugeVector;
 namespace {
 
 constexpr double kPi = 3.14159265358979323846;

@@ -15,7 +15,7 @@
 #include <sys/mman.h>
 #endif
 
-namespace fluxtrim::core {
+namespace fluxtrim::models {
 
 inline void AdviseHugePages(void* data, std::size_t bytes) {
 #if defined(__linux__) && defined(MADV_HUGEPAGE)
@@ -51,4 +51,4 @@ void HugeAssign(std::vector<T>* v, std::size_t n, const T& value) {
   else v->assign(n, value);
 }
 
-}  // namespace fluxtrim::core
+}  // namespace fluxtrim::models
