@@ -19,11 +19,6 @@ namespace {
 
 constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
 
-// Plausible magnitude of each kind of coefficient: the fit's values
-// (fit.cc, our judgement of the physics, generous on purpose).
-constexpr double kMaxPermanentNT = 20000.0;
-constexpr double kMaxInduced = 0.2;
-constexpr double kMaxEddyS = 0.005;
 
 std::string Sci(double v) {
   char buffer[64];
@@ -141,30 +136,11 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
   result.derivative_half_width = k;
   const BandPass band(options.band, rate);
 
-  const double* f = nullptr;
-  if (table.Has("f")) {
-    const auto& fc = table.Column("f");
-    if (std::any_of(fc.begin(), fc.end(),
-                    [](double v) { return std::isfinite(v); })) {
-      f = fc.data();
-    }
-  }
+  const TermInputs inputs = SelectTermInputs(table, options.terms.aux);
+  const double* f = inputs.f;
+  const std::vector<const double*>& aux = inputs.aux;
+  const std::vector<double>& aux_rms = inputs.aux_rms;
   result.field_source = f ? "f" : "|B|";
-  std::vector<const double*> aux;
-  std::vector<double> aux_rms;
-  for (const std::string& name : options.terms.aux) {
-    const auto& col = table.Column(name);
-    aux.push_back(col.data());
-    double s = 0;
-    std::size_t c = 0;
-    for (double v : col) {
-      if (std::isfinite(v)) {
-        s += v * v;
-        ++c;
-      }
-    }
-    aux_rms.push_back(c ? std::sqrt(s / static_cast<double>(c)) : 0.0);
-  }
 
   models::TermEngine::Options engine;
   engine.terms = options.terms;

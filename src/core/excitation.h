@@ -44,6 +44,7 @@
 #include "io/table.h"
 #include "models/tolles_lawson.h"
 #include "src/core/butterworth.h"
+#include "src/core/fit.h"
 
 namespace fluxtrim::core {
 
@@ -55,9 +56,9 @@ struct ExcitationOptions {
   double gap_factor = 1.5;  // step > gap_factor / rate is a gap
   // Samples dropped at each end of a filtered run (s); 0 = 0.5 / low_hz.
   double edge_trim_s = 0.0;
-  // Thresholds of fit.cc (kShapeNullSingularValue, kUndeterminedFraction).
-  double shape_null_singular_value = 1e-4;
-  double undetermined_fraction = 0.01;
+  // The fit's thresholds (fit.h).
+  double shape_null_singular_value = kShapeNullSingularValue;
+  double undetermined_fraction = kUndeterminedFraction;
   // Row subsampling of the shape analysis (it only looks for exact
   // dependences, so every sample is not needed).
   std::size_t max_shape_rows = 20000;

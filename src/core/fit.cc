@@ -35,29 +35,9 @@ namespace {
 constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
 
 // A held term is fixed at 0 in the solve (an infinitely strong prior,
-// ceres::SubsetManifold). Directions of the term shapes (columns without
-// the Bt factor, de-meaned, unit RMS) with a relative singular value below
-// this were not excited independently by the flight: their Bt-scaled
-// columns then vary only with Bt, i.e. they would fit the total field with
-// itself.
-constexpr double kShapeNullSingularValue = 1e-4;
+// ceres::SubsetManifold); fit.h has the criteria of a determined term.
 // Weight of the gauge constraints of the 18-term set, relative to sqrt(n).
 constexpr double kConstraintWeight = 1e3;
-
-// Plausible magnitude of each kind of coefficient (our judgement of the
-// physics, for aircraft, drones and vehicles; generous on purpose): a
-// permanent field beyond 20,000 nT at the sensor, an induced field beyond
-// 20% of the Earth's field, or an eddy coefficient beyond 5 ms (50 nT of
-// eddy field for a direction-cosine rate of 0.2/s in a 50,000 nT field,
-// ten times the largest eddy fields of survey aircraft) would be a
-// platform no compensation could fix. Aux terms: their contribution
-// beyond 20,000 nT.
-constexpr double kMaxPermanentNT = 20000.0;
-constexpr double kMaxInduced = 0.2;
-constexpr double kMaxEddyS = 0.005;
-// A term whose standard error exceeds this fraction of its plausible range
-// (200 nT, 0.002, 50 us) is not determined by the flight.
-constexpr double kUndeterminedFraction = 0.01;
 
 // Tuning constants for 95% efficiency under Gaussian noise (common
 // practice: Huber 1981; Holland & Welsch 1977) and the MAD-to-sigma factor
@@ -677,6 +657,32 @@ std::string TermUnit(const std::string& name) {
   return "nT/unit";
 }
 
+TermInputs SelectTermInputs(const io::Table& table,
+                            const std::vector<std::string>& aux_names) {
+  TermInputs in;
+  if (table.Has("f")) {
+    const auto& fc = table.Column("f");
+    if (std::any_of(fc.begin(), fc.end(),
+                    [](double v) { return std::isfinite(v); })) {
+      in.f = fc.data();
+    }
+  }
+  for (const std::string& name : aux_names) {
+    const auto& col = table.Column(name);
+    in.aux.push_back(col.data());
+    double s = 0;
+    std::size_t c = 0;
+    for (double v : col) {
+      if (std::isfinite(v)) {
+        s += v * v;
+        ++c;
+      }
+    }
+    in.aux_rms.push_back(c ? std::sqrt(s / static_cast<double>(c)) : 0.0);
+  }
+  return in;
+}
+
 FitResult FitModel(const io::Table& table, const FitOptions& options) {
   std::string error;
   if (!options.IsValid(&error)) throw std::invalid_argument(error);
@@ -706,34 +712,17 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   const auto& bx = table.Column("bx");
   const auto& by = table.Column("by");
   const auto& bz = table.Column("bz");
-  const double* f = nullptr;
-  if (table.Has("f")) {
-    const auto& fc = table.Column("f");
-    if (std::any_of(fc.begin(), fc.end(), [](double v) { return std::isfinite(v); })) {
-      f = fc.data();
-    } else {
-      result.warnings.push_back(
-          "channel f holds no finite value: the fluxgate magnitude |B| is used "
-          "as the total field");
-    }
+  const TermInputs inputs = SelectTermInputs(table, options.terms.aux);
+  const double* f = inputs.f;
+  const std::vector<const double*>& aux = inputs.aux;
+  const std::vector<double>& aux_rms = inputs.aux_rms;
+  if (table.Has("f") && f == nullptr) {
+    result.warnings.push_back(
+        "channel f holds no finite value: the fluxgate magnitude |B| is used "
+        "as the total field");
   }
   w.scalar = f != nullptr;
   result.field_source = w.scalar ? "f" : "|B|";
-  std::vector<const double*> aux;
-  std::vector<double> aux_rms;
-  for (const std::string& name : options.terms.aux) {
-    const auto& col = table.Column(name);
-    aux.push_back(col.data());
-    double s = 0;
-    std::size_t c = 0;
-    for (double v : col) {
-      if (std::isfinite(v)) {
-        s += v * v;
-        ++c;
-      }
-    }
-    aux_rms.push_back(c ? std::sqrt(s / static_cast<double>(c)) : 0.0);
-  }
   result.samples = w.n;
   result.time.reserve(w.n);
   AdviseHugePages(result.time.data(), w.n * sizeof(double));

@@ -75,6 +75,39 @@ bool ParseRobustLoss(const std::string& text, RobustLoss* loss);
 // band-passed matrix counts as null (the data say nothing about it).
 inline constexpr double kNullSingularValue = 1e-6;
 
+// When a term counts as determined by a recording: shared by the fit and
+// the excitation check of `inspect` (excitation.h), so the two agree.
+// Directions of the term shapes (columns without the Bt factor, de-meaned,
+// unit RMS) with a relative singular value below kShapeNullSingularValue
+// were not excited independently by the flight.
+inline constexpr double kShapeNullSingularValue = 1e-4;
+// Plausible magnitude of each kind of coefficient (our judgement of the
+// physics, for aircraft, drones and vehicles; generous on purpose): a
+// permanent field beyond 20,000 nT at the sensor, an induced field beyond
+// 20% of the Earth's field, or an eddy coefficient beyond 5 ms (50 nT of
+// eddy field for a direction-cosine rate of 0.2/s in a 50,000 nT field,
+// ten times the largest eddy fields of survey aircraft) would be a
+// platform no compensation could fix. Aux terms: their contribution
+// beyond 20,000 nT.
+inline constexpr double kMaxPermanentNT = 20000.0;
+inline constexpr double kMaxInduced = 0.2;
+inline constexpr double kMaxEddyS = 0.005;
+// A term whose standard error exceeds this fraction of its plausible range
+// (200 nT, 0.002, 50 us) is not determined by the flight.
+inline constexpr double kUndeterminedFraction = 0.01;
+
+// The inputs of the term columns in a recording: the scalar channel f when
+// it holds at least one finite value (else null: |B| is the total field),
+// the aux channels and their RMS over finite samples (which scales the
+// plausible range of an aux coefficient). Shared by the fit and inspect.
+struct TermInputs {
+  const double* f = nullptr;
+  std::vector<const double*> aux;
+  std::vector<double> aux_rms;
+};
+TermInputs SelectTermInputs(const io::Table& table,
+                            const std::vector<std::string>& aux_names);
+
 struct FitOptions {
   models::TermOptions terms;            // default: the 16-term set
   // Derivative half-width k (samples); 0 = round(0.2 s * rate), at least 1.
