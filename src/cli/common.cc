@@ -4,6 +4,7 @@
 
 #include <fstream>
 #include <iostream>
+#include <sstream>
 #include <stdexcept>
 
 #include <google/protobuf/util/json_util.h>
@@ -65,5 +66,28 @@ void WriteJson(const std::string& path,
 }
 
 bool StderrIsTerminal() { return isatty(STDERR_FILENO) == 1; }
+
+std::vector<std::string> SplitComma(const std::string& s) {
+  std::vector<std::string> out;
+  std::stringstream words(s);
+  std::string word;
+  while (std::getline(words, word, ',')) {
+    const auto b = word.find_first_not_of(" \t");
+    const auto e = word.find_last_not_of(" \t");
+    if (b != std::string::npos) out.push_back(word.substr(b, e - b + 1));
+  }
+  return out;
+}
+
+double ParseNumber(const std::string& option, const std::string& text) {
+  try {
+    std::size_t used = 0;
+    const double v = std::stod(text, &used);
+    if (used != text.size()) throw std::invalid_argument(text);
+    return v;
+  } catch (const std::exception&) {
+    throw CLI::ValidationError(option, "expected a number, got '" + text + "'");
+  }
+}
 
 }  // namespace fluxtrim::cli

@@ -30,4 +30,11 @@ std::string ToJson(const google::protobuf::Message& message);
 // True when stderr is a terminal (progress output goes there only then).
 bool StderrIsTerminal();
 
+// "a, b,c" -> {"a", "b", "c"} (blanks around names dropped, empty names
+// skipped).
+std::vector<std::string> SplitComma(const std::string& s);
+
+// The whole text as a number, else a usage error naming the option.
+double ParseNumber(const std::string& option, const std::string& text);
+
 }  // namespace fluxtrim::cli

@@ -77,29 +77,6 @@ void WriteText(const std::string& path, const std::string& text) {
   if (!out) throw std::runtime_error(path + ": cannot write the JSON file");
 }
 
-std::vector<std::string> SplitComma(const std::string& s) {
-  std::vector<std::string> out;
-  std::stringstream words(s);
-  std::string word;
-  while (std::getline(words, word, ',')) {
-    const auto b = word.find_first_not_of(" \t");
-    const auto e = word.find_last_not_of(" \t");
-    if (b != std::string::npos) out.push_back(word.substr(b, e - b + 1));
-  }
-  return out;
-}
-
-double ParseNumber(const std::string& option, const std::string& text) {
-  try {
-    std::size_t used = 0;
-    const double v = std::stod(text, &used);
-    if (used != text.size()) throw std::invalid_argument(text);
-    return v;
-  } catch (const std::exception&) {
-    throw CLI::ValidationError(option, "expected a number, got '" + text + "'");
-  }
-}
-
 core::FitOptions MakeFitOptions(const FitArgs& args) {
   core::FitOptions options;
   try {
