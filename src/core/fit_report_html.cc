@@ -4,6 +4,9 @@
 #include <cmath>
 #include <cstdio>
 #include <map>
+#include <stdexcept>
+
+#include "src/core/excitation.h"
 
 namespace fluxtrim::core {
 namespace {
@@ -84,6 +87,22 @@ ReportData FitReportData(const FitResult& fit, const io::Table& recording,
   }
   for (const FitCoefficient& c : fit.coefficients) {
     data.coefficients.push_back({c.name, c.value, c.std_error});
+  }
+  // Per-group excitation: singular values of the band-passed term columns,
+  // the same analysis `inspect` prints. The report goes on without the plot
+  // when the recording cannot be analysed.
+  try {
+    ExcitationOptions eo;
+    eo.terms = fit.engine.terms;
+    eo.derivative_half_width = fit.engine.half_width;
+    eo.band = fit.band;
+    eo.gap_factor = fit.engine.gap_factor;
+    eo.source = file;
+    for (const GroupExcitation& g : AnalyseExcitation(recording, eo).groups) {
+      data.excitation.push_back({g.group, g.singular_values});
+    }
+  } catch (const std::exception& e) {
+    data.warnings.push_back(std::string("excitation check skipped: ") + e.what());
   }
   // Spectrum: the total field before and after (not band-passed).
   const std::vector<double> field = recording.Has("f")

@@ -149,4 +149,35 @@ TEST_F(DemoChain, ValidationBoxFlownLaterReportsTheFomBeforeAndAfter) {
       << s.fom_before_nt() << " -> " << s.fom_after_nt();
 }
 
+// Apply issue, reports: `fit --report` and `apply --report` write one
+// self-contained page with every plot the issue lists.
+TEST_F(DemoChain, FitAndApplyReportsHoldEveryPlotAndNoOutsideResource) {
+  const std::string fit_html = ::testing::TempDir() + "fit_report.html";
+  ASSERT_EQ(Fluxtrim("fit " + kFlights + "demo_box.csv -o " +
+                     ::testing::TempDir() + "again.model --report " + fit_html),
+            0)
+      << Slurp(::testing::TempDir() + "run.log");
+  const std::string fit_page = Slurp(fit_html);
+  for (const char* id :
+       {"plot-heading", "plot-maneuvers", "plot-coef-permanent",
+        "plot-coef-induced", "plot-coef-eddy", "plot-excitation",
+        "plot-spectrum", "plot-attitude", "plot-track"}) {
+    EXPECT_NE(fit_page.find(std::string("id=\"") + id + "\""), std::string::npos)
+        << id;
+  }
+  const std::string apply_html = ::testing::TempDir() + "apply_report.html";
+  ASSERT_EQ(Fluxtrim("apply " + model_ + " " + kFlights + "demo_lines.csv -o " +
+                     ::testing::TempDir() + "lines2.csv --report " + apply_html),
+            0)
+      << Slurp(::testing::TempDir() + "run.log");
+  const std::string apply_page = Slurp(apply_html);
+  EXPECT_NE(apply_page.find("id=\"plot-spectrum\""), std::string::npos);
+  for (const std::string& page : {fit_page, apply_page}) {
+    EXPECT_NE(page.find("<svg"), std::string::npos);
+    EXPECT_EQ(page.find("<script"), std::string::npos);
+    EXPECT_EQ(page.find("src=\"http"), std::string::npos);
+    EXPECT_EQ(page.find("href=\"http"), std::string::npos);
+  }
+}
+
 }  // namespace
