@@ -360,24 +360,13 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
   // ---- determination, one term at a time -------------------------------
   auto hold_null_direction = [&](const CompressedSystem& s, double threshold,
                                  const char* what) {
-    const std::vector<int> free = FreeColumns(held);
-    if (free.empty()) return false;
-    const SvdAnalysis svd = AnalyseSystem(SubSystem(s, free));
-    const long q = svd.singular_values.size();
-    const double s0 = svd.singular_values(0);
-    if (q == 0 || svd.singular_values(q - 1) > threshold * s0) return false;
-    // The term loading most on the null direction (ties: the later term).
-    const Eigen::VectorXd v = svd.v.col(q - 1).cwiseAbs();
-    const double vmax = v.maxCoeff();
-    long pick = 0;
-    for (long i = 0; i < q; ++i) {
-      if (v(i) >= 0.5 * vmax) pick = i;
-    }
-    const std::size_t j =
-        static_cast<std::size_t>(free[static_cast<std::size_t>(pick)]);
+    const NullDirection d =
+        FindNullDirection(s, FreeColumns(held), threshold);
+    if (d.column < 0) return false;
+    const std::size_t j = static_cast<std::size_t>(d.column);
     held[j] = true;
     reason[j] = std::string(what) + " (relative singular value " +
-                Sci(svd.singular_values(q - 1) / s0) + ")";
+                Sci(d.relative_singular_value) + ")";
     return true;
   };
   const double n_rows = static_cast<double>(rows);

@@ -1030,24 +1030,13 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   // is determined; then solve.
   auto hold_null_direction = [&](const CompressedSystem& system,
                                  double threshold, const char* what) {
-    const std::vector<int> free = FreeColumns(held);
-    if (free.empty()) return false;
-    const SvdAnalysis svd = AnalyseSystem(SubSystem(system, free));
-    const long q = svd.singular_values.size();
-    const double s0 = svd.singular_values(0);
-    if (q == 0 || svd.singular_values(q - 1) > threshold * s0) return false;
-    // Hold the term loading most on the null direction (ties: the later
-    // term, so that `full` gives up ind_zz / eddy_zz first).
-    const Eigen::VectorXd v = svd.v.col(q - 1).cwiseAbs();
-    const double vmax = v.maxCoeff();
-    long pick = 0;
-    for (long i = 0; i < q; ++i) {
-      if (v(i) >= 0.5 * vmax) pick = i;
-    }
-    const std::size_t j = static_cast<std::size_t>(free[static_cast<std::size_t>(pick)]);
+    const NullDirection d =
+        FindNullDirection(system, FreeColumns(held), threshold);
+    if (d.column < 0) return false;
+    const std::size_t j = static_cast<std::size_t>(d.column);
     held[j] = true;
     notes[j] = std::string(what) + " (relative singular value " +
-               Sci(svd.singular_values(q - 1) / s0) + ")";
+               Sci(d.relative_singular_value) + ")";
     return true;
   };
   auto determine = [&](const CompressedSystem& base) {

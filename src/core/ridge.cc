@@ -131,4 +131,25 @@ GcvResult ChooseRidgeByGcv(const CompressedSystem& system,
   return best;
 }
 
+NullDirection FindNullDirection(const CompressedSystem& system,
+                                const std::vector<int>& columns,
+                                double threshold) {
+  NullDirection d;
+  if (columns.empty()) return d;
+  const SvdAnalysis svd = AnalyseSystem(SubSystem(system, columns));
+  const long q = svd.singular_values.size();
+  if (q == 0) return d;
+  const double s0 = svd.singular_values(0);
+  if (svd.singular_values(q - 1) > threshold * s0) return d;
+  const Eigen::VectorXd v = svd.v.col(q - 1).cwiseAbs();
+  const double vmax = v.maxCoeff();
+  long pick = 0;
+  for (long i = 0; i < q; ++i) {
+    if (v(i) >= 0.5 * vmax) pick = i;
+  }
+  d.column = columns[static_cast<std::size_t>(pick)];
+  d.relative_singular_value = svd.singular_values(q - 1) / s0;
+  return d;
+}
+
 }  // namespace fluxtrim::core

@@ -36,6 +36,19 @@ SvdAnalysis AnalyseSystem(const CompressedSystem& system);
 CompressedSystem SubSystem(const CompressedSystem& system,
                            const std::vector<int>& columns);
 
+// The weakest direction of the subsystem of `columns`: when its singular
+// value is at most `threshold` times the largest, the column loading most
+// on it (ties within a factor 2: the later column, so that the 18-term set
+// gives up ind_zz / eddy_zz first) and that relative singular value;
+// column -1 otherwise. Used to hold terms the data cannot separate.
+struct NullDirection {
+  int column = -1;                      // index into system's columns
+  double relative_singular_value = 0;   // s_min / s_max
+};
+NullDirection FindNullDirection(const CompressedSystem& system,
+                                const std::vector<int>& columns,
+                                double threshold);
+
 struct GcvOptions {
   double min_lambda = 1e-16;   // search range of lambda (per sample)
   double max_lambda = 1.0;
