@@ -28,12 +28,14 @@ std::string Slurp(const std::string& path) {
 }
 
 fluxtrim::proto::InspectSummary Inspect(const std::string& path) {
-  const std::string json = path + ".json";
+  // Outputs go to the test's own temp dir, never beside the input.
+  const std::string base = path.substr(path.find_last_of('/') + 1);
+  const std::string json = ::testing::TempDir() + base + ".json";
+  const std::string log = ::testing::TempDir() + base + ".log";
   const std::string cmd = std::string(FLUXTRIM_EXE) + " inspect " + path +
-                          " --json " + json + " > " + path + ".log 2>&1";
+                          " --json " + json + " > " + log + " 2>&1";
   const int status = std::system(cmd.c_str());
-  EXPECT_TRUE(WIFEXITED(status) && WEXITSTATUS(status) == 0)
-      << Slurp(path + ".log");
+  EXPECT_TRUE(WIFEXITED(status) && WEXITSTATUS(status) == 0) << Slurp(log);
   fluxtrim::proto::InspectSummary s;
   EXPECT_TRUE(google::protobuf::util::JsonStringToMessage(Slurp(json), &s).ok())
       << path;
