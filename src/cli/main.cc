@@ -9,6 +9,7 @@
 
 #include "fluxtrim/version.h"
 #include "io/error.h"
+#include "models/huge_pages.h"
 #include "src/cli/commands.h"
 
 namespace fluxtrim::cli {
@@ -27,6 +28,7 @@ void AddPendingCommand(CLI::App& app, const char* name, const char* summary,
 
 int main(int argc, char** argv) {
   using namespace fluxtrim;
+  models::ConfigureBatchHeap();
   CLI::App app{
       "fluxtrim " FLUXTRIM_VERSION
       ": removes the magnetic interference of a platform from magnetometer "

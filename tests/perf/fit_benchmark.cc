@@ -6,7 +6,9 @@
 //
 // The default runs maneuver detection on a second thread (FitOptions::
 // threads = 2); the *OneThread variants keep everything on one core. CPU
-// time counts both threads.
+// time counts both threads. Like the fluxtrim binary, the benchmark starts
+// with models::ConfigureBatchHeap() (large blocks kept and reused on a heap
+// advised for huge pages).
 //
 //   build-*/tests/fit_benchmark --benchmark_min_time=1
 #include <benchmark/benchmark.h>
@@ -14,6 +16,7 @@
 #include <memory>
 #include <string>
 
+#include "models/huge_pages.h"
 #include "src/core/fit.h"
 #include "src/core/scenario.h"
 #include "tests/core/fit_test_util.h"
@@ -87,4 +90,11 @@ BENCHMARK(BM_FitMillionSamplesOneThread)->Unit(benchmark::kMillisecond)->UseReal
 }  // namespace
 }  // namespace fluxtrim::core
 
-BENCHMARK_MAIN();
+int main(int argc, char** argv) {
+  fluxtrim::models::ConfigureBatchHeap();
+  benchmark::Initialize(&argc, argv);
+  if (benchmark::ReportUnrecognizedArguments(argc, argv)) return 1;
+  benchmark::RunSpecifiedBenchmarks();
+  benchmark::Shutdown();
+  return 0;
+}
