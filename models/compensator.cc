@@ -72,6 +72,34 @@ int Compensator::latency_samples() const {
   return engine_.half_width() + (lag_zero_ ? 0 : std::max(0, lag_floor_ + 2));
 }
 
+inline int Compensator::Take(int ready, bool flushing, CompensatedSample* out) {
+  if (lag_zero_ && !keep_rows_) {
+    // Without a lag an output needs no later sample: straight from the
+    // engine's outputs, the same arithmetic as Store + Finish without the
+    // round trip through the ring.
+    for (int i = 0; i < ready; ++i) {
+      const TermEngine::Output& o = engine_out_[static_cast<std::size_t>(i)];
+      CompensatedSample& s = out[i];
+      const double h = o.interference - model_.interference_mean_nT;
+      const double f = model_.scalar_sensor ? o.f : o.bt;
+      s.index = o.index;
+      s.time = o.time;
+      s.bt = o.bt;
+      s.flags = o.flags;
+      if (attitude_outside_[static_cast<std::size_t>(o.index & ring_mask_)]) {
+        s.flags |= kFlagAttitudeOutside;
+      }
+      s.f_interference = h;
+      s.f_comp = std::isfinite(h) ? f - h : kNaN;
+    }
+    received_ += static_cast<std::uint64_t>(ready);
+    emitted_ = received_;
+    return ready;
+  }
+  for (int i = 0; i < ready; ++i) Store(engine_out_[static_cast<std::size_t>(i)]);
+  return Drain(flushing, out, 0);
+}
+
 int Compensator::Push(double time, const double b[3], double f,
                       const double* aux, double roll_deg, double pitch_deg,
                       double temp_c, CompensatedSample* out) {
@@ -84,27 +112,26 @@ int Compensator::Push(double time, const double b[3], double f,
   }
   // The attitude flag is decided now and picked up when the engine emits
   // this sample (at most k + 1 pushes later, well inside the ring).
+  // (Comparisons with NaN are false: a missing angle is never outside;
+  // bitwise | keeps the check free of branches.)
   bool outside = false;
   if (model_.has_attitude_range) {
-    outside = (std::isfinite(roll_deg) &&
-               (roll_deg < model_.roll_min_deg || roll_deg > model_.roll_max_deg)) ||
-              (std::isfinite(pitch_deg) && (pitch_deg < model_.pitch_min_deg ||
-                                            pitch_deg > model_.pitch_max_deg));
+    outside = (roll_deg < model_.roll_min_deg) | (roll_deg > model_.roll_max_deg) |
+              (pitch_deg < model_.pitch_min_deg) | (pitch_deg > model_.pitch_max_deg);
   }
   attitude_outside_[static_cast<std::size_t>(pushed_ & ring_mask_)] =
       outside ? 1 : 0;
   ++pushed_;
   const double scalar = model_.scalar_sensor ? f : kNaN;
   const int ready = engine_.Push(time, field, scalar, aux, engine_out_.data());
-  for (int i = 0; i < ready; ++i) Store(engine_out_[static_cast<std::size_t>(i)]);
-  return Drain(false, out, 0);
+  return Take(ready, false, out);
 }
 
 int Compensator::Flush(CompensatedSample* out) {
   const int ready = engine_.Flush(engine_out_.data());
-  for (int i = 0; i < ready; ++i) Store(engine_out_[static_cast<std::size_t>(i)]);
-  return Drain(true, out, 0);
+  return Take(ready, true, out);
 }
+
 
 void Compensator::Store(const TermEngine::Output& o) {
   Record& r = ring_[static_cast<std::size_t>(o.index & ring_mask_)];

@@ -104,6 +104,8 @@ class Compensator {
     double time, f, h, bt;
     std::uint32_t flags;
   };
+  // Turns the engine's `ready` outputs into samples (out), returns how many.
+  int Take(int ready, bool flushing, CompensatedSample* out);
   void Store(const TermEngine::Output& output);
   int Drain(bool flushing, CompensatedSample* out, int n);
   void Finish(std::uint64_t index, CompensatedSample* out);

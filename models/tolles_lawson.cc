@@ -153,6 +153,8 @@ TermEngine::TermEngine(const Options& options) : options_(options) {
   }
   term_count_ = TermCount(options_.terms);
   aux_count_ = options_.terms.aux.size();
+  default_layout_ = options_.terms.permanent && options_.terms.induced &&
+                    options_.terms.eddy && !options_.terms.full;
   const int k = options_.half_width;
   ring_size_ = 1;
   while (ring_size_ < static_cast<std::size_t>(2 * k + 1)) ring_size_ *= 2;
@@ -192,14 +194,17 @@ int TermEngine::Emit(std::size_t position, bool derivative_valid,
   // accumulating in it would store on every window sample.
   double dc0 = 0.0, dc1 = 0.0, dc2 = 0.0;
   if (derivative_valid) {
-    const std::size_t first = position - static_cast<std::size_t>(options_.half_width);
-    const std::size_t width = weights_.size();  // 2k + 1
-    for (std::size_t j = 0; j < width; ++j) {
-      const Pending& q = ring_[Slot(first + j)];
-      const double w = weights_[j];
-      dc0 += w * q.c[0];
-      dc1 += w * q.c[1];
-      dc2 += w * q.c[2];
+    // Savitzky-Golay weights are odd (w_-j = -w_j, w_0 = 0): the slope is
+    // sum_j w_j (c_{+j} - c_{-j}) over j = 1..k, half the multiplications
+    // and a shorter chain of additions than the full window.
+    const std::size_t k = static_cast<std::size_t>(options_.half_width);
+    for (std::size_t j = 1; j <= k; ++j) {
+      const Pending& a = ring_[Slot(position + j)];
+      const Pending& b = ring_[Slot(position - j)];
+      const double w = weights_[k + j];
+      dc0 += w * (a.c[0] - b.c[0]);
+      dc1 += w * (a.c[1] - b.c[1]);
+      dc2 += w * (a.c[2] - b.c[2]);
     }
   } else {
     o.flags |= kFlagDerivativeInvalid;
@@ -213,7 +218,32 @@ int TermEngine::Emit(std::size_t position, bool derivative_valid,
   double* row = &rows_[static_cast<std::size_t>(next_row_++) * term_count_];
   const double* aux =
       aux_count_ ? &aux_store_[Slot(position) * aux_count_] : nullptr;
-  FillTermRow(options_.terms, o.c, o.dc, o.bt, aux, row);
+  if (default_layout_) {
+    // The default 16 terms, written out (FillTermRow's order and
+    // arithmetic, without its loops and branches), then any aux columns.
+    const double c0 = p.c[0], c1 = p.c[1], c2 = p.c[2], bt = p.bt;
+    row[0] = c0;
+    row[1] = c1;
+    row[2] = c2;
+    row[3] = bt * c0 * c0;
+    row[4] = bt * c0 * c1;
+    row[5] = bt * c0 * c2;
+    row[6] = bt * c1 * c1;
+    row[7] = bt * c1 * c2;
+    row[8] = bt * c0 * dc0;
+    row[9] = bt * c0 * dc1;
+    row[10] = bt * c0 * dc2;
+    row[11] = bt * c1 * dc0;
+    row[12] = bt * c1 * dc1;
+    row[13] = bt * c1 * dc2;
+    row[14] = bt * c2 * dc0;
+    row[15] = bt * c2 * dc1;
+    for (std::size_t a = 0; a < aux_count_; ++a) {
+      for (int i = 0; i < 3; ++i) row[16 + 3 * a + i] = p.c[i] * aux[a];
+    }
+  } else {
+    FillTermRow(options_.terms, o.c, o.dc, o.bt, aux, row);
+  }
   o.row = row;
   // Four partial sums: one serial chain of additions was latency bound.
   // Every path (apply, stream, runtime) computes it here, so they agree.
@@ -245,8 +275,11 @@ int TermEngine::Push(double time, const double b[3], double f,
   next_row_ = 0;
   int n = 0;
   const std::uint64_t index = next_index_++;
-  const double norm = std::sqrt(b[0] * b[0] + b[1] * b[1] + b[2] * b[2]);
-  const bool good = std::isfinite(time) && std::isfinite(norm) && norm > 0;
+  const double norm2 = b[0] * b[0] + b[1] * b[1] + b[2] * b[2];
+  // Decided on the square (the same outcome: sqrt keeps 0, inf and NaN), so
+  // the branch need not wait for the square root.
+  const bool good = std::isfinite(time) && std::isfinite(norm2) && norm2 > 0;
+  const double norm = std::sqrt(norm2);
   bool gap = !good;
   if (good && segment_length_ > 0) {
     const double dt = time - last_time_;

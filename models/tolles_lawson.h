@@ -153,6 +153,7 @@ class TermEngine {
   Options options_;
   std::size_t term_count_ = 0;
   std::size_t aux_count_ = 0;
+  bool default_layout_ = false;  // permanent, induced, eddy; not full
   std::size_t ring_size_ = 0;
   std::size_t ring_mask_ = 0;
   std::vector<Pending> ring_;

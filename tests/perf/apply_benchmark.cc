@@ -25,6 +25,7 @@
 #include "io/frames.h"
 #include "io/model_file.h"
 #include "models/compensator.h"
+#include "models/huge_pages.h"
 #include "models/tolles_lawson.h"
 #include "src/core/apply.h"
 #include "tests/perf/perf_data.h"
@@ -195,6 +196,7 @@ int WriteInputs(int argc, char** argv) {
 int main(int argc, char** argv) {
   const int written = fluxtrim::perf::WriteInputs(argc, argv);
   if (written >= 0) return written;
+  fluxtrim::models::ConfigureBatchHeap();  // as the fluxtrim binary does
   benchmark::Initialize(&argc, argv);
   if (benchmark::ReportUnrecognizedArguments(argc, argv)) return 1;
   benchmark::RunSpecifiedBenchmarks();
