@@ -511,15 +511,7 @@ void CsvReader::ParseRow(std::string_view line, bool has_newline) {
 
 std::size_t CsvReader::ReadChunk(Table* chunk, std::size_t max_rows) {
   if (pending_error_) throw *pending_error_;
-  bool same_schema = chunk->cols() == channels_.size();
-  for (std::size_t c = 0; same_schema && c < channels_.size(); ++c) {
-    same_schema = chunk->channel(c).info.name == channels_[c].name;
-  }
-  if (same_schema) {
-    chunk->ClearRows();
-  } else {
-    *chunk = Table(channels_);
-  }
+  chunk->ResetRows(channels_);
   if (ended_ || max_rows == 0) return 0;
 
   const std::size_t n = channels_.size();

@@ -11,31 +11,10 @@
 #include <google/protobuf/text_format.h>
 
 #include "io/error.h"
+#include "io/text_proto_file.h"
 
 namespace fluxtrim::io {
 namespace {
-
-// Collects the first parse error with its (1-based) place.
-class FirstError : public google::protobuf::io::ErrorCollector {
- public:
-  void AddError(int line, google::protobuf::io::ColumnNumber column,
-                const std::string& message) override {
-    if (found_) return;
-    found_ = true;
-    line_ = static_cast<std::size_t>(line + 1);
-    column_ = static_cast<std::size_t>(column + 1);
-    message_ = message;
-  }
-  bool found() const { return found_; }
-  std::size_t line() const { return line_; }
-  std::size_t column() const { return column_; }
-  const std::string& message() const { return message_; }
-
- private:
-  bool found_ = false;
-  std::size_t line_ = 0, column_ = 0;
-  std::string message_;
-};
 
 constexpr char kHeader[] =
     "# fluxtrim compensation model (protobuf text format, schema in\n"
@@ -104,54 +83,15 @@ void CheckContent(const proto::CompensationModel& m,
 
 proto::CompensationModel ParseModelText(const std::string& text,
                                         const std::string& source_name) {
-  // First pass tolerates unknown fields so that a file from a newer schema
-  // is refused by its version rather than by a field name.
-  {
-    proto::CompensationModel probe;
-    google::protobuf::TextFormat::Parser lenient;
-    lenient.AllowUnknownField(true);
-    FirstError errors;
-    lenient.RecordErrorsTo(&errors);
-    if (lenient.ParseFromString(text, &probe) &&
-        probe.schema_version() != kModelSchemaVersion) {
-      throw InputError(
-          source_name, "field schema_version",
-          probe.schema_version() == 0
-              ? "missing: expected schema_version: " +
-                    std::to_string(kModelSchemaVersion) +
-                    " (is this a fluxtrim model file?)"
-              : "version " + std::to_string(probe.schema_version()) +
-                    " is not supported by this fluxtrim (reads version " +
-                    std::to_string(kModelSchemaVersion) + ")");
-    }
-  }
-  proto::CompensationModel model;
-  google::protobuf::TextFormat::Parser parser;
-  FirstError errors;
-  parser.RecordErrorsTo(&errors);
-  if (!parser.ParseFromString(text, &model)) {
-    if (errors.found()) {
-      throw InputError(source_name, errors.line(), errors.column(),
-                       errors.message() + " (expected a fluxtrim model, "
-                                          "protobuf text format)");
-    }
-    throw InputError(source_name, 0, 0, "cannot parse the model file");
-  }
-  if (model.schema_version() != kModelSchemaVersion) {
-    throw InputError(source_name, "field schema_version",
-                     "expected schema_version: " +
-                         std::to_string(kModelSchemaVersion));
-  }
+  proto::CompensationModel model =
+      ParseVersionedText<proto::CompensationModel>(text, source_name,
+                                                   kModelSchemaVersion, "model");
   CheckContent(model, source_name);
   return model;
 }
 
 proto::CompensationModel ReadModelFile(const std::string& path) {
-  std::ifstream in(path, std::ios::binary);
-  if (!in) throw InputError(path, 0, 0, "cannot open the model file");
-  std::ostringstream text;
-  text << in.rdbuf();
-  return ParseModelText(text.str(), path);
+  return ParseModelText(ReadTextFile(path, "model"), path);
 }
 
 std::string FormatModelText(const proto::CompensationModel& model) {
@@ -165,21 +105,7 @@ std::string FormatModelText(const proto::CompensationModel& model) {
 
 void WriteModelFile(const std::string& path,
                     const proto::CompensationModel& model) {
-  const std::string text = FormatModelText(model);
-  const std::string temp = path + ".tmp";
-  {
-    std::ofstream out(temp, std::ios::binary | std::ios::trunc);
-    out << text;
-    out.close();
-    if (!out) {
-      std::remove(temp.c_str());
-      throw std::runtime_error(path + ": cannot write the model file");
-    }
-  }
-  if (std::rename(temp.c_str(), path.c_str()) != 0) {
-    std::remove(temp.c_str());
-    throw std::runtime_error(path + ": cannot write the model file");
-  }
+  WriteTextFileAtomically(path, FormatModelText(model), "model");
 }
 
 }  // namespace fluxtrim::io

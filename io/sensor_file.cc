@@ -11,31 +11,10 @@
 #include <google/protobuf/text_format.h>
 
 #include "io/error.h"
+#include "io/text_proto_file.h"
 
 namespace fluxtrim::io {
 namespace {
-
-// Collects the first parse error with its (1-based) place.
-class FirstError : public google::protobuf::io::ErrorCollector {
- public:
-  void AddError(int line, google::protobuf::io::ColumnNumber column,
-                const std::string& message) override {
-    if (found_) return;
-    found_ = true;
-    line_ = static_cast<std::size_t>(line + 1);
-    column_ = static_cast<std::size_t>(column + 1);
-    message_ = message;
-  }
-  bool found() const { return found_; }
-  std::size_t line() const { return line_; }
-  std::size_t column() const { return column_; }
-  const std::string& message() const { return message_; }
-
- private:
-  bool found_ = false;
-  std::size_t line_ = 0, column_ = 0;
-  std::string message_;
-};
 
 constexpr char kHeader[] =
     "# fluxtrim fluxgate sensor calibration (protobuf text format, schema\n"
@@ -119,58 +98,14 @@ void CheckSensorCalibration(const proto::SensorCalibration& cal,
 
 proto::SensorCalibration ParseSensorText(const std::string& text,
                                          const std::string& source_name) {
-  // First pass tolerates unknown fields so that a file from a newer schema
-  // is refused by its version rather than by a field name.
-  {
-    proto::SensorCalibration probe;
-    google::protobuf::TextFormat::Parser lenient;
-    lenient.AllowUnknownField(true);
-    FirstError errors;
-    lenient.RecordErrorsTo(&errors);
-    if (lenient.ParseFromString(text, &probe) &&
-        probe.schema_version() != kSensorSchemaVersion) {
-      throw InputError(
-          source_name, "field schema_version",
-          probe.schema_version() == 0
-              ? "missing: expected schema_version: " +
-                    std::to_string(kSensorSchemaVersion) +
-                    " (is this a fluxtrim sensor calibration file?)"
-              : "version " + std::to_string(probe.schema_version()) +
-                    " is not supported by this fluxtrim (reads version " +
-                    std::to_string(kSensorSchemaVersion) + ")");
-    }
-  }
-  proto::SensorCalibration cal;
-  google::protobuf::TextFormat::Parser parser;
-  FirstError errors;
-  parser.RecordErrorsTo(&errors);
-  if (!parser.ParseFromString(text, &cal)) {
-    if (errors.found()) {
-      throw InputError(source_name, errors.line(), errors.column(),
-                       errors.message() +
-                           " (expected a fluxtrim sensor calibration, "
-                           "protobuf text format)");
-    }
-    throw InputError(source_name, 0, 0,
-                     "cannot parse the sensor calibration file");
-  }
-  if (cal.schema_version() != kSensorSchemaVersion) {
-    throw InputError(source_name, "field schema_version",
-                     "expected schema_version: " +
-                         std::to_string(kSensorSchemaVersion));
-  }
+  proto::SensorCalibration cal = ParseVersionedText<proto::SensorCalibration>(
+      text, source_name, kSensorSchemaVersion, "sensor calibration");
   CheckSensorCalibration(cal, source_name);
   return cal;
 }
 
 proto::SensorCalibration ReadSensorFile(const std::string& path) {
-  std::ifstream in(path, std::ios::binary);
-  if (!in) {
-    throw InputError(path, 0, 0, "cannot open the sensor calibration file");
-  }
-  std::ostringstream text;
-  text << in.rdbuf();
-  return ParseSensorText(text.str(), path);
+  return ParseSensorText(ReadTextFile(path, "sensor calibration"), path);
 }
 
 std::string FormatSensorText(const proto::SensorCalibration& cal) {
@@ -186,23 +121,7 @@ void WriteSensorFile(const std::string& path,
                      const proto::SensorCalibration& cal) {
   proto::SensorCalibration copy = cal;
   if (copy.schema_version() == 0) copy.set_schema_version(kSensorSchemaVersion);
-  const std::string text = FormatSensorText(copy);
-  const std::string temp = path + ".tmp";
-  {
-    std::ofstream out(temp, std::ios::binary | std::ios::trunc);
-    out << text;
-    out.close();
-    if (!out) {
-      std::remove(temp.c_str());
-      throw std::runtime_error(path +
-                               ": cannot write the sensor calibration file");
-    }
-  }
-  if (std::rename(temp.c_str(), path.c_str()) != 0) {
-    std::remove(temp.c_str());
-    throw std::runtime_error(path +
-                             ": cannot write the sensor calibration file");
-  }
+  WriteTextFileAtomically(path, FormatSensorText(copy), "sensor calibration");
 }
 
 }  // namespace fluxtrim::io

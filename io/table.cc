@@ -71,6 +71,18 @@ void Table::ClearRows() {
   for (Channel& c : channels_) c.values.clear();
 }
 
+void Table::ResetRows(const std::vector<ChannelInfo>& schema) {
+  bool same = channels_.size() == schema.size();
+  for (std::size_t c = 0; same && c < schema.size(); ++c) {
+    same = channels_[c].info.name == schema[c].name;
+  }
+  if (same) {
+    ClearRows();
+  } else {
+    *this = Table(schema);
+  }
+}
+
 void Table::Append(const Table& other) {
   if (other.cols() != cols()) {
     throw std::invalid_argument("cannot append tables of different schemas");

@@ -52,6 +52,9 @@ class Table {
 
   // Removes all rows, keeps the channels.
   void ClearRows();
+  // Removes all rows and makes the channels `schema` (keeping the columns'
+  // buffers when the names already match): readers reuse one chunk table.
+  void ResetRows(const std::vector<ChannelInfo>& schema);
   // Appends the rows of another table with the same schema (same names in
   // the same order); throws std::invalid_argument otherwise.
   void Append(const Table& other);

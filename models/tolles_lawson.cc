@@ -125,6 +125,49 @@ void FillTermRow(const TermOptions& o, const double c[3], const double dc[3],
   }
 }
 
+namespace {
+
+// The default 16 terms (FillTermRow's order and arithmetic, written out).
+inline void FillDefaultRow(const double c[3], double dc0, double dc1,
+                           double dc2, double bt, double* row) {
+  const double c0 = c[0], c1 = c[1], c2 = c[2];
+  row[0] = c0;
+  row[1] = c1;
+  row[2] = c2;
+  row[3] = bt * c0 * c0;
+  row[4] = bt * c0 * c1;
+  row[5] = bt * c0 * c2;
+  row[6] = bt * c1 * c1;
+  row[7] = bt * c1 * c2;
+  row[8] = bt * c0 * dc0;
+  row[9] = bt * c0 * dc1;
+  row[10] = bt * c0 * dc2;
+  row[11] = bt * c1 * dc0;
+  row[12] = bt * c1 * dc1;
+  row[13] = bt * c1 * dc2;
+  row[14] = bt * c2 * dc0;
+  row[15] = bt * c2 * dc1;
+}
+
+// row . coef in four partial sums (one serial chain of additions was latency
+// bound). Every path (apply, stream, runtime, fit) computes it this way, so
+// they agree to the bit.
+inline double PartialSumDot(const double* row, const double* coef,
+                            std::size_t n) {
+  double h0 = 0.0, h1 = 0.0, h2 = 0.0, h3 = 0.0;
+  const std::size_t whole = n - n % 4;
+  for (std::size_t t = 0; t < whole; t += 4) {
+    h0 += row[t] * coef[t];
+    h1 += row[t + 1] * coef[t + 1];
+    h2 += row[t + 2] * coef[t + 2];
+    h3 += row[t + 3] * coef[t + 3];
+  }
+  for (std::size_t t = whole; t < n; ++t) h0 += row[t] * coef[t];
+  return (h0 + h1) + (h2 + h3);
+}
+
+}  // namespace
+
 double DerivativeWeight(int half_width, int offset, double dt_s) {
   // Savitzky & Golay (1964): fit a + b j + c j^2 + d j^3 to the window; on a
   // symmetric window the slope b comes from the odd part alone:
@@ -153,6 +196,7 @@ TermEngine::TermEngine(const Options& options) : options_(options) {
   }
   term_count_ = TermCount(options_.terms);
   aux_count_ = options_.terms.aux.size();
+  max_step_s_ = options_.gap_factor / options_.sample_rate_hz;
   default_layout_ = options_.terms.permanent && options_.terms.induced &&
                     options_.terms.eddy && !options_.terms.full;
   const int k = options_.half_width;
@@ -218,46 +262,26 @@ int TermEngine::Emit(std::size_t position, bool derivative_valid,
   double* row = &rows_[static_cast<std::size_t>(next_row_++) * term_count_];
   const double* aux =
       aux_count_ ? &aux_store_[Slot(position) * aux_count_] : nullptr;
+  const double* coef = coefficients_.data();
+  o.row = row;
+  if (default_layout_ && aux_count_ == 0) {
+    // Built in registers, then stored: the dot product need not reload the
+    // row (which the compiler cannot prove apart from the coefficients).
+    double r[16];
+    FillDefaultRow(p.c, dc0, dc1, dc2, p.bt, r);
+    std::copy(r, r + 16, row);
+    o.interference = PartialSumDot(r, coef, 16);
+    return 1;
+  }
   if (default_layout_) {
-    // The default 16 terms, written out (FillTermRow's order and
-    // arithmetic, without its loops and branches), then any aux columns.
-    const double c0 = p.c[0], c1 = p.c[1], c2 = p.c[2], bt = p.bt;
-    row[0] = c0;
-    row[1] = c1;
-    row[2] = c2;
-    row[3] = bt * c0 * c0;
-    row[4] = bt * c0 * c1;
-    row[5] = bt * c0 * c2;
-    row[6] = bt * c1 * c1;
-    row[7] = bt * c1 * c2;
-    row[8] = bt * c0 * dc0;
-    row[9] = bt * c0 * dc1;
-    row[10] = bt * c0 * dc2;
-    row[11] = bt * c1 * dc0;
-    row[12] = bt * c1 * dc1;
-    row[13] = bt * c1 * dc2;
-    row[14] = bt * c2 * dc0;
-    row[15] = bt * c2 * dc1;
+    FillDefaultRow(p.c, dc0, dc1, dc2, p.bt, row);
     for (std::size_t a = 0; a < aux_count_; ++a) {
       for (int i = 0; i < 3; ++i) row[16 + 3 * a + i] = p.c[i] * aux[a];
     }
   } else {
     FillTermRow(options_.terms, o.c, o.dc, o.bt, aux, row);
   }
-  o.row = row;
-  // Four partial sums: one serial chain of additions was latency bound.
-  // Every path (apply, stream, runtime) computes it here, so they agree.
-  const double* coef = coefficients_.data();
-  double h0 = 0.0, h1 = 0.0, h2 = 0.0, h3 = 0.0;
-  std::size_t t = 0;
-  for (; t + 4 <= term_count_; t += 4) {
-    h0 += row[t] * coef[t];
-    h1 += row[t + 1] * coef[t + 1];
-    h2 += row[t + 2] * coef[t + 2];
-    h3 += row[t + 3] * coef[t + 3];
-  }
-  for (; t < term_count_; ++t) h0 += row[t] * coef[t];
-  o.interference = (h0 + h1) + (h2 + h3);
+  o.interference = PartialSumDot(row, coef, term_count_);
   return 1;
 }
 
@@ -283,7 +307,7 @@ int TermEngine::Push(double time, const double b[3], double f,
   bool gap = !good;
   if (good && segment_length_ > 0) {
     const double dt = time - last_time_;
-    gap = !(dt > 0) || dt > options_.gap_factor / options_.sample_rate_hz;
+    gap = !(dt > 0) || dt > max_step_s_;
   }
   const bool after_gap = gap || (index > 0 && segment_length_ == 0);
   if (gap && segment_length_ > 0) {

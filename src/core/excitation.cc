@@ -38,14 +38,6 @@ std::string GroupOf(const std::string& name) {
   return name.substr(0, name.size() - 2);
 }
 
-std::vector<int> FreeColumns(const std::vector<bool>& held) {
-  std::vector<int> cols;
-  for (std::size_t j = 0; j < held.size(); ++j) {
-    if (!held[j]) cols.push_back(static_cast<int>(j));
-  }
-  return cols;
-}
-
 // Singular values of columns `cols` of a / sqrt(rows), descending.
 std::vector<double> GroupSingularValues(const Eigen::MatrixXd& a,
                                         const std::vector<int>& cols) {
@@ -360,14 +352,7 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
   // ---- determination, one term at a time -------------------------------
   auto hold_null_direction = [&](const CompressedSystem& s, double threshold,
                                  const char* what) {
-    const NullDirection d =
-        FindNullDirection(s, FreeColumns(held), threshold);
-    if (d.column < 0) return false;
-    const std::size_t j = static_cast<std::size_t>(d.column);
-    held[j] = true;
-    reason[j] = std::string(what) + " (relative singular value " +
-                Sci(d.relative_singular_value) + ")";
-    return true;
+    return HoldNullDirection(s, threshold, what, &held, &reason);
   };
   const double n_rows = static_cast<double>(rows);
   for (std::size_t round = 0; round <= p; ++round) {

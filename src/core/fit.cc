@@ -186,14 +186,6 @@ CompressedSystem Augment(const CompressedSystem& s, const Work& w,
   return out;
 }
 
-std::vector<int> FreeColumns(const std::vector<bool>& held) {
-  std::vector<int> cols;
-  for (std::size_t j = 0; j < held.size(); ++j) {
-    if (!held[j]) cols.push_back(static_cast<int>(j));
-  }
-  return cols;
-}
-
 struct Solution {
   bool ok = false;
   std::string message;
@@ -346,28 +338,6 @@ class JointLagCost : public ceres::CostFunction {
   const RunInterpolators* y_;
 };
 
-class PriorCost : public ceres::CostFunction {
- public:
-  explicit PriorCost(Eigen::MatrixXd g) : g_(std::move(g)) {
-    set_num_residuals(static_cast<int>(g_.rows()));
-    mutable_parameter_block_sizes()->push_back(static_cast<int>(g_.cols()));
-  }
-  bool Evaluate(double const* const* parameters, double* residuals,
-                double** jacobians) const override {
-    Eigen::Map<const Eigen::VectorXd> x(parameters[0], g_.cols());
-    Eigen::Map<Eigen::VectorXd>(residuals, g_.rows()) = g_ * x;
-    if (jacobians && jacobians[0]) {
-      Eigen::Map<Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic,
-                               Eigen::RowMajor>>(jacobians[0], g_.rows(),
-                                                 g_.cols()) = g_;
-    }
-    return true;
-  }
-
- private:
-  Eigen::MatrixXd g_;
-};
-
 struct LagResult {
   double lag_samples = 0;
   double std_error_samples = 0;
@@ -445,7 +415,7 @@ LagResult EstimateLag(const Work& w, const std::vector<double>& band_full,
                       constraints[static_cast<std::size_t>(i)][static_cast<std::size_t>(j)];
       }
     }
-    problem.AddResidualBlock(new PriorCost(std::move(g)), nullptr, x.data());
+    problem.AddResidualBlock(NewLinearPriorCost(std::move(g)), nullptr, x.data());
   }
   {
     std::vector<int> fixed;
@@ -1030,14 +1000,7 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   // is determined; then solve.
   auto hold_null_direction = [&](const CompressedSystem& system,
                                  double threshold, const char* what) {
-    const NullDirection d =
-        FindNullDirection(system, FreeColumns(held), threshold);
-    if (d.column < 0) return false;
-    const std::size_t j = static_cast<std::size_t>(d.column);
-    held[j] = true;
-    notes[j] = std::string(what) + " (relative singular value " +
-               Sci(d.relative_singular_value) + ")";
-    return true;
+    return HoldNullDirection(system, threshold, what, &held, &notes);
   };
   auto determine = [&](const CompressedSystem& base) {
     held = w.unexcited;

@@ -64,6 +64,10 @@ class LinearPriorCost : public ceres::CostFunction {
 
 }  // namespace
 
+ceres::CostFunction* NewLinearPriorCost(Eigen::MatrixXd g) {
+  return new LinearPriorCost(std::move(g));
+}
+
 bool LeastSquaresOptions::IsValid(std::string* error) const {
   for (double w : prior_weights) {
     if (!(w >= 0) || !std::isfinite(w)) {

@@ -26,7 +26,16 @@
 
 #include <Eigen/Core>
 
+namespace ceres {
+class CostFunction;
+}
+
 namespace fluxtrim::core {
+
+// Ceres cost of the residuals G x for a stack of weighted rows G (a ridge
+// prior, soft linear constraints), one parameter block of G.cols() values.
+// The caller (a ceres::Problem) takes ownership.
+ceres::CostFunction* NewLinearPriorCost(Eigen::MatrixXd g);
 
 // The QR-compressed form of (A, y): R upper-triangular p x p, z = Q^T y, and
 // the part of ||y||^2 outside the range of A.

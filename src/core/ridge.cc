@@ -1,6 +1,7 @@
 #include "src/core/ridge.h"
 
 #include <algorithm>
+#include <cstdio>
 #include <cmath>
 #include <limits>
 
@@ -150,6 +151,27 @@ NullDirection FindNullDirection(const CompressedSystem& system,
   d.column = columns[static_cast<std::size_t>(pick)];
   d.relative_singular_value = svd.singular_values(q - 1) / s0;
   return d;
+}
+
+std::vector<int> FreeColumns(const std::vector<bool>& held) {
+  std::vector<int> cols;
+  for (std::size_t j = 0; j < held.size(); ++j) {
+    if (!held[j]) cols.push_back(static_cast<int>(j));
+  }
+  return cols;
+}
+
+bool HoldNullDirection(const CompressedSystem& system, double threshold,
+                       const char* what, std::vector<bool>* held,
+                       std::vector<std::string>* notes) {
+  const NullDirection d = FindNullDirection(system, FreeColumns(*held), threshold);
+  if (d.column < 0) return false;
+  const std::size_t j = static_cast<std::size_t>(d.column);
+  (*held)[j] = true;
+  char value[64];
+  std::snprintf(value, sizeof value, "%.3g", d.relative_singular_value);
+  (*notes)[j] = std::string(what) + " (relative singular value " + value + ")";
+  return true;
 }
 
 }  // namespace fluxtrim::core

@@ -10,6 +10,7 @@
 // s_i^2 / (s_i^2 + lambda), so lambda = 1e-8 damps directions whose
 // singular value is below about 1e-4.
 
+#include <string>
 #include <vector>
 
 #include <Eigen/Core>
@@ -48,6 +49,17 @@ struct NullDirection {
 NullDirection FindNullDirection(const CompressedSystem& system,
                                 const std::vector<int>& columns,
                                 double threshold);
+
+// Indices j with held[j] false.
+std::vector<int> FreeColumns(const std::vector<bool>& held);
+
+// FindNullDirection over the free columns; when one is found, holds it
+// (held[j] = true), sets notes[j] to "<what> (relative singular value
+// <s>)" and returns true. The fit and inspect's excitation check hold terms
+// with it, so they agree.
+bool HoldNullDirection(const CompressedSystem& system, double threshold,
+                       const char* what, std::vector<bool>* held,
+                       std::vector<std::string>* notes);
 
 struct GcvOptions {
   double min_lambda = 1e-16;   // search range of lambda (per sample)
