@@ -15,6 +15,7 @@
 #include <utility>
 
 #include "io/error.h"
+#include "io/text_proto_file.h"
 #include "models/simulator.h"
 #include "models/wmm.h"
 #include "proto/scenario.pb.h"
@@ -32,28 +33,6 @@ constexpr double kPi = 3.14159265358979323846;
 constexpr double kDegToRad = kPi / 180.0;
 constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
 constexpr int kMaxDecimals = 12;
-
-// First syntax error of the text-format parser (0-based line and column).
-class FirstError : public google::protobuf::io::ErrorCollector {
- public:
-  void AddError(int line, google::protobuf::io::ColumnNumber column,
-                const std::string& message) override {
-    if (found_) return;
-    found_ = true;
-    line_ = line;
-    column_ = column;
-    message_ = message;
-  }
-  bool found() const { return found_; }
-  int line() const { return line_; }
-  int column() const { return column_; }
-  const std::string& message() const { return message_; }
-
- private:
-  bool found_ = false;
-  int line_ = -1, column_ = -1;
-  std::string message_;
-};
 
 // Turns a field path ("sensors.fluxgate.gains.x", "platform.currents[1]")
 // into the line and column where the parser saw it, for error messages.
@@ -878,7 +857,7 @@ SimulatedFlight SimulateScenarioText(const std::string& text,
                                      const std::string& source_name,
                                      const SimulateOptions& options) {
   proto::Scenario scenario;
-  FirstError errors;
+  io::FirstTextError errors;
   TextFormat::ParseInfoTree tree;
   TextFormat::Parser parser;
   parser.RecordErrorsTo(&errors);
@@ -886,8 +865,7 @@ SimulatedFlight SimulateScenarioText(const std::string& text,
   if (!parser.ParseFromString(text, &scenario)) {
     if (errors.found()) {
       throw io::InputError(source_name,
-                           static_cast<std::size_t>(errors.line() + 1),
-                           static_cast<std::size_t>(errors.column() + 1),
+                           errors.line(), errors.column(),
                            "scenario: " + errors.message());
     }
     throw io::InputError(source_name, 0, 0,
