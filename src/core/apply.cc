@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <exception>
 #include <cmath>
+#include <stdexcept>
 #include <limits>
 #include <memory>
 #include <sstream>
@@ -328,10 +329,10 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
 }
 
 io::Table ApplyInMemory(const proto::CompensationModel& model,
-                        const io::Table& recording, const std::string& file) {
+                        io::Table recording, const std::string& file) {
   // The same steps as ApplyChunked with the whole table as one chunk
   // (tests/core/apply_test checks the outputs are equal bit for bit),
-  // without its staging copies: the input is copied once into the output.
+  // without its staging copies: the input columns move into the output.
   if (recording.rows() == 0) {
     throw io::InputError(file, 0, 0, "expected samples, found none");
   }
@@ -339,30 +340,32 @@ io::Table ApplyInMemory(const proto::CompensationModel& model,
   io::Table out(OutputSchema(recording.Schema()));
   const std::size_t base = recording.cols(), n = recording.rows();
   for (std::size_t c = 0; c < base; ++c) {
-    out.channel(c).values = recording.channel(c).values;
+    out.channel(c).values = std::move(recording.channel(c).values);
   }
-  auto output_column = [&out, n](std::size_t c) {
-    out.channel(c).values.assign(n, 0.0);
-    return out.channel(c).values.data();
-  };
-  double* f_comp = output_column(base);
-  double* f_int = output_column(base + 1);
-  double* flags = output_column(base + 2);
+  // Outputs leave the compensator in input order, one per input sample:
+  // appended, not written over a zero-filled column.
+  std::vector<double>& f_comp = out.channel(base).values;
+  std::vector<double>& f_int = out.channel(base + 1).values;
+  std::vector<double>& flags = out.channel(base + 2).values;
+  for (std::vector<double>* v : {&f_comp, &f_int, &flags}) v->reserve(n);
 
   models::Compensator compensator(ToCompensatorModel(model, file));
-  RowPusher pusher(model, recording, &compensator);
+  RowPusher pusher(model, out, &compensator);
   std::vector<models::CompensatedSample> ready(
       static_cast<std::size_t>(compensator.max_outputs()));
   auto store = [&](const models::CompensatedSample* s, int count) {
     for (int k = 0; k < count; ++k) {
-      const std::size_t i = static_cast<std::size_t>(s[k].index);
-      f_comp[i] = s[k].f_comp;
-      f_int[i] = s[k].f_interference;
-      flags[i] = static_cast<double>(s[k].flags);
+      if (s[k].index != f_comp.size()) {
+        throw std::logic_error("compensator output out of order");
+      }
+      f_comp.push_back(s[k].f_comp);
+      f_int.push_back(s[k].f_interference);
+      flags.push_back(static_cast<double>(s[k].flags));
     }
   };
-  pusher.Push(recording, 0, n, ready.data(), store);
+  pusher.Push(out, 0, n, ready.data(), store);
   store(ready.data(), compensator.Flush(ready.data()));
+  if (f_comp.size() != n) throw std::logic_error("compensator lost samples");
   return out;
 }
 

@@ -86,9 +86,11 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
                          io::RecordingWriter& writer,
                          const ApplyOptions& options = {});
 
-// The same on a table in memory; returns the output table.
+// The same on a table in memory; returns the output table. The recording's
+// columns become the output's input columns: pass it with std::move when it
+// is not needed afterwards, and nothing is copied.
 io::Table ApplyInMemory(const proto::CompensationModel& model,
-                        const io::Table& recording,
+                        io::Table recording,
                         const std::string& file = "<memory>");
 
 }  // namespace fluxtrim::core
