@@ -1101,6 +1101,9 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   clock.Mark("maneuvers (wait)");
   // Condition number of the equilibrated matrix over its excited columns.
   std::vector<double> band_full = BandPassRuns(w, w.field);
+  // Whether band_full is the band-passed `aligned` field (not `cleaned`):
+  // then it need not be filtered again for the lag search and the metrics.
+  bool band_of_aligned = true;
   Eigen::VectorXd y = AtFitRows(w, band_full);
   const CompressedSystem first_system = design.Compress(y);
   {
@@ -1204,6 +1207,7 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
         }
       }
       band_full = BandPassRuns(w, cleaned);
+      band_of_aligned = false;
       y = AtFitRows(w, band_full);
       Solution next = determine(design.Compress(y));
       if (!next.ok) break;
@@ -1218,9 +1222,15 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   clock.Mark("robust");
   // ---- lag -----------------------------------------------------------------
   if (w.scalar && options.estimate_lag && options.max_lag_s > 0) {
-    // Searched on the (cleaned) field at lag 0.
-    const LagResult lag = EstimateLag(w, BandPassRuns(w, robust ? cleaned : aligned), held,
-                                      solution.lambda, options.max_lag_s * w.rate);
+    // Searched on the band-passed (cleaned) field at lag 0; without the
+    // robust loss that is band_full as it stands.
+    std::vector<double> refiltered;
+    if (robust || !band_of_aligned) {
+      refiltered = BandPassRuns(w, robust ? cleaned : aligned);
+    }
+    const LagResult lag =
+        EstimateLag(w, robust || !band_of_aligned ? refiltered : band_full, held,
+                    solution.lambda, options.max_lag_s * w.rate);
     if (lag.ok) {
       result.lag_estimated = true;
       result.lag_s = lag.lag_samples / w.rate;
@@ -1235,6 +1245,7 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
                            options.gap_factor);
       if (robust) cleaned = aligned;
       band_full = BandPassRuns(w, aligned);
+      band_of_aligned = true;
       y = AtFitRows(w, band_full);
       solution = determine(design.Compress(y));
       if (!solution.ok) {
@@ -1260,8 +1271,10 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
         " loss (reading moved by more than " + Sci(result.loss_scale_nT) + " nT)");
   }
   // Metrics below use the measured (aligned, not cleaned) field.
-  band_full = BandPassRuns(w, aligned);
-  y = AtFitRows(w, band_full);
+  if (!band_of_aligned) {
+    band_full = BandPassRuns(w, aligned);
+    y = AtFitRows(w, band_full);
+  }
 
   clock.Mark("lag");
   // ---- coefficients --------------------------------------------------------
