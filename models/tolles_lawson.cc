@@ -264,15 +264,6 @@ int TermEngine::Emit(std::size_t position, bool derivative_valid,
       aux_count_ ? &aux_store_[Slot(position) * aux_count_] : nullptr;
   const double* coef = coefficients_.data();
   o.row = row;
-  if (default_layout_ && aux_count_ == 0) {
-    // Built in registers, then stored: the dot product need not reload the
-    // row (which the compiler cannot prove apart from the coefficients).
-    double r[16];
-    FillDefaultRow(p.c, dc0, dc1, dc2, p.bt, r);
-    std::copy(r, r + 16, row);
-    o.interference = PartialSumDot(r, coef, 16);
-    return 1;
-  }
   if (default_layout_) {
     FillDefaultRow(p.c, dc0, dc1, dc2, p.bt, row);
     for (std::size_t a = 0; a < aux_count_; ++a) {
