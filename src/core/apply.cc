@@ -165,10 +165,11 @@ std::vector<std::string> RequiredChannels(
   return names;
 }
 
-double MedianRateHz(const std::vector<double>& time) {
+double MedianRateHz(const std::vector<double>& time, std::size_t rows) {
+  const std::size_t n = std::min(rows, time.size());
   std::vector<double> steps;
-  steps.reserve(time.size());
-  for (std::size_t i = 1; i < time.size(); ++i) {
+  steps.reserve(n);
+  for (std::size_t i = 1; i < n; ++i) {
     const double dt = time[i] - time[i - 1];
     if (dt > 0 && std::isfinite(dt)) steps.push_back(dt);
   }
@@ -181,7 +182,8 @@ double MedianRateHz(const std::vector<double>& time) {
 
 void CheckRecordingFitsModel(const proto::CompensationModel& model,
                              const io::Table& first_chunk,
-                             const std::string& file, double max_rate_error) {
+                             const std::string& file, double max_rate_error,
+                             std::size_t rate_rows) {
   std::vector<std::string> missing;
   for (const std::string& name : RequiredChannels(model)) {
     if (!first_chunk.Has(name)) missing.push_back(name);
@@ -195,7 +197,7 @@ void CheckRecordingFitsModel(const proto::CompensationModel& model,
             " that the recording lacks (it has " + Join(have) +
             "); map other column names with --map NAME=COLUMN");
   }
-  const double rate = MedianRateHz(first_chunk.Column("time"));
+  const double rate = MedianRateHz(first_chunk.Column("time"), rate_rows);
   if (!std::isfinite(rate)) {
     throw io::InputError(file, "time",
                          "expected at least two increasing times to measure "
@@ -336,7 +338,9 @@ io::Table ApplyInMemory(const proto::CompensationModel& model,
   if (recording.rows() == 0) {
     throw io::InputError(file, 0, 0, "expected samples, found none");
   }
-  CheckRecordingFitsModel(model, recording, file);
+  // The rate on the first chunk's rows, as ApplyChunked decides it with its
+  // default chunk size.
+  CheckRecordingFitsModel(model, recording, file, 0.01, ApplyOptions().chunk_rows);
   io::Table out(OutputSchema(recording.Schema()));
   const std::size_t base = recording.cols(), n = recording.rows();
   for (std::size_t c = 0; c < base; ++c) {

@@ -16,6 +16,7 @@
 //                   the fit saw, 8 bad sample, 16 lag reached a segment end
 
 #include <cstddef>
+#include <cstdint>
 #include <functional>
 #include <string>
 #include <vector>
@@ -39,15 +40,19 @@ std::vector<std::string> RequiredChannels(
     const proto::CompensationModel& model);
 
 // Refuses (io::InputError naming the file) a recording the model does not
-// fit: a missing channel, or a median sample rate off the model's by more
-// than max_rate_error (relative, default 1%).
+// fit: a missing channel, or a median sample rate (over the first
+// rate_rows rows) off the model's by more than max_rate_error (relative,
+// default 1%).
 void CheckRecordingFitsModel(const proto::CompensationModel& model,
                              const io::Table& first_chunk,
                              const std::string& file,
-                             double max_rate_error = 0.01);
+                             double max_rate_error = 0.01,
+                             std::size_t rate_rows = SIZE_MAX);
 
-// Median sample rate of a chunk (Hz); NaN with fewer than two good steps.
-double MedianRateHz(const std::vector<double>& time);
+// Median sample rate of the first `rows` times (Hz); NaN with fewer than
+// two good steps.
+double MedianRateHz(const std::vector<double>& time,
+                    std::size_t rows = SIZE_MAX);
 
 // Schema of the output: the input's plus f_comp, f_interference, flags.
 std::vector<io::ChannelInfo> OutputSchema(
