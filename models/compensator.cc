@@ -132,7 +132,6 @@ int Compensator::Flush(CompensatedSample* out) {
   return Take(ready, true, out);
 }
 
-
 void Compensator::Store(const TermEngine::Output& o) {
   Record& r = ring_[static_cast<std::size_t>(o.index & ring_mask_)];
   r.index = o.index;
