@@ -12,6 +12,8 @@
 #include <string>
 #include <vector>
 
+#include "tests/support/subprocess.h"
+
 namespace {
 
 struct ProcessResult {
@@ -32,18 +34,11 @@ ProcessResult RunFluxtrim(const std::string& args) {
   const std::string err_path =
       testing::TempDir() + "field_test_stderr_" +
       testing::UnitTest::GetInstance()->current_test_info()->name();
-  const std::string command =
-      std::string("'") + FLUXTRIM_EXE + "' " + args + " 2>'" + err_path + "'";
+  const fluxtrim::test_support::CommandResult r = fluxtrim::test_support::RunCommand(
+      std::string("'") + FLUXTRIM_EXE + "' " + args + " 2>'" + err_path + "'");
   ProcessResult run;
-  FILE* pipe = popen(command.c_str(), "r");
-  if (pipe == nullptr) return run;
-  char buffer[4096];
-  std::size_t n = 0;
-  while ((n = std::fread(buffer, 1, sizeof buffer, pipe)) > 0) {
-    run.out.append(buffer, n);
-  }
-  const int status = pclose(pipe);
-  run.exit_code = WIFEXITED(status) ? WEXITSTATUS(status) : -1;
+  run.exit_code = r.code;
+  run.out = r.output;
   run.err = Slurp(err_path);
   std::remove(err_path.c_str());
   return run;

@@ -23,6 +23,7 @@
 #include "src/core/fit.h"
 #include "src/core/fit_model.h"
 #include "src/core/stream.h"
+#include "tests/support/subprocess.h"
 
 namespace fluxtrim::core {
 namespace {
@@ -444,14 +445,7 @@ TEST(AdaptiveTest, RefusesAModelWithoutResidualSigmaOrStandardErrors) {
                std::invalid_argument);
 }
 
-bool HaveScipy() {
-  static const bool have = [] {
-    const std::string cmd = std::string(FLUXTRIM_PYTHON) +
-                            " -c 'import scipy.signal' >/dev/null 2>&1";
-    return std::system(cmd.c_str()) == 0;
-  }();
-  return have;
-}
+using test_support::HaveScipy;
 
 // The causal filter against scipy.signal.sosfilt with
 // zi = sosfilt_zi(sos) * x[0], the sections from scipy.signal.butter (SciPy

@@ -5,6 +5,7 @@
 // python3-scipy).
 
 #include "src/core/butterworth.h"
+#include "tests/support/subprocess.h"
 
 #include <gtest/gtest.h>
 
@@ -33,14 +34,7 @@ constexpr double kCoefficientRelTol = 1e-10;
 // carries a 52000 nT offset, so this is 2e-13 relative to the input.
 constexpr double kOutputTolNt = 1e-8;
 
-bool HaveScipy() {
-  static const bool have = [] {
-    const std::string cmd = std::string(FLUXTRIM_PYTHON) +
-                            " -c 'import scipy.signal' >/dev/null 2>&1";
-    return std::system(cmd.c_str()) == 0;
-  }();
-  return have;
-}
+using test_support::HaveScipy;
 
 std::string Num(double v) {
   char text[64];

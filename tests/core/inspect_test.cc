@@ -19,6 +19,7 @@
 #include "io/recording.h"
 #include "src/core/excitation.h"
 #include "src/core/scenario.h"
+#include "tests/support/subprocess.h"
 
 namespace fluxtrim::core {
 namespace {
@@ -224,21 +225,10 @@ TEST(Inspect, LongRecordingIsNotHeldInMemoryForTheExcitationCheck) {
 
 // ---- command line -------------------------------------------------------
 
-struct Result {
-  int code = -1;
-  std::string output;
-};
+using Result = test_support::CommandResult;  // code, output (stdout + stderr)
 
 Result Exec(const std::string& args) {
-  const std::string cmd = std::string(FLUXTRIM_EXE) + " " + args + " 2>&1";
-  Result run;
-  FILE* pipe = popen(cmd.c_str(), "r");
-  if (!pipe) return run;
-  char buffer[4096];
-  while (fgets(buffer, sizeof buffer, pipe)) run.output += buffer;
-  const int status = pclose(pipe);
-  run.code = WIFEXITED(status) ? WEXITSTATUS(status) : -1;
-  return run;
+  return test_support::RunFluxtrimMerged(args);
 }
 
 TEST(InspectCli, JsonHoldsManeuversAndExcitation) {
