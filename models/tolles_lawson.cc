@@ -127,30 +127,8 @@ void FillTermRow(const TermOptions& o, const double c[3], const double dc[3],
 
 namespace {
 
-// The default 16 terms (FillTermRow's order and arithmetic, written out).
-inline void FillDefaultRow(const double c[3], double dc0, double dc1,
-                           double dc2, double bt, double* row) {
-  const double c0 = c[0], c1 = c[1], c2 = c[2];
-  row[0] = c0;
-  row[1] = c1;
-  row[2] = c2;
-  row[3] = bt * c0 * c0;
-  row[4] = bt * c0 * c1;
-  row[5] = bt * c0 * c2;
-  row[6] = bt * c1 * c1;
-  row[7] = bt * c1 * c2;
-  row[8] = bt * c0 * dc0;
-  row[9] = bt * c0 * dc1;
-  row[10] = bt * c0 * dc2;
-  row[11] = bt * c1 * dc0;
-  row[12] = bt * c1 * dc1;
-  row[13] = bt * c1 * dc2;
-  row[14] = bt * c2 * dc0;
-  row[15] = bt * c2 * dc1;
-}
-
 // row . coef in four partial sums (one serial chain of additions was latency
-// bound). Every path (apply, stream, runtime, fit) computes it this way, so
+// bound). Every compensation path (apply, stream, runtime) computes it here, so
 // they agree to the bit.
 inline double PartialSumDot(const double* row, const double* coef,
                             std::size_t n) {
@@ -197,8 +175,6 @@ TermEngine::TermEngine(const Options& options) : options_(options) {
   term_count_ = TermCount(options_.terms);
   aux_count_ = options_.terms.aux.size();
   max_step_s_ = options_.gap_factor / options_.sample_rate_hz;
-  default_layout_ = options_.terms.permanent && options_.terms.induced &&
-                    options_.terms.eddy && !options_.terms.full;
   const int k = options_.half_width;
   ring_size_ = 1;
   while (ring_size_ < static_cast<std::size_t>(2 * k + 1)) ring_size_ *= 2;
@@ -262,17 +238,9 @@ int TermEngine::Emit(std::size_t position, bool derivative_valid,
   double* row = &rows_[static_cast<std::size_t>(next_row_++) * term_count_];
   const double* aux =
       aux_count_ ? &aux_store_[Slot(position) * aux_count_] : nullptr;
-  const double* coef = coefficients_.data();
+  FillTermRow(options_.terms, o.c, o.dc, o.bt, aux, row);
   o.row = row;
-  if (default_layout_) {
-    FillDefaultRow(p.c, dc0, dc1, dc2, p.bt, row);
-    for (std::size_t a = 0; a < aux_count_; ++a) {
-      for (int i = 0; i < 3; ++i) row[16 + 3 * a + i] = p.c[i] * aux[a];
-    }
-  } else {
-    FillTermRow(options_.terms, o.c, o.dc, o.bt, aux, row);
-  }
-  o.interference = PartialSumDot(row, coef, term_count_);
+  o.interference = PartialSumDot(row, coefficients_.data(), term_count_);
   return 1;
 }
 

@@ -153,7 +153,6 @@ class TermEngine {
   Options options_;
   std::size_t term_count_ = 0;
   std::size_t aux_count_ = 0;
-  bool default_layout_ = false;  // permanent, induced, eddy; not full
   double max_step_s_ = 0.0;      // gap_factor / sample_rate_hz
   std::size_t ring_size_ = 0;
   std::size_t ring_mask_ = 0;
