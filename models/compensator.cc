@@ -72,25 +72,39 @@ int Compensator::latency_samples() const {
   return engine_.half_width() + (lag_zero_ ? 0 : std::max(0, lag_floor_ + 2));
 }
 
+inline Compensator::Record Compensator::ToRecord(const TermEngine::Output& o) const {
+  Record r;
+  r.index = o.index;
+  r.segment = o.segment;
+  r.time = o.time;
+  r.bt = o.bt;
+  r.f = model_.scalar_sensor ? o.f : o.bt;
+  r.h = o.interference - model_.interference_mean_nT;
+  r.flags = o.flags;
+  if (attitude_outside_[static_cast<std::size_t>(o.index & ring_mask_)]) {
+    r.flags |= kFlagAttitudeOutside;
+  }
+  return r;
+}
+
+inline void Compensator::WriteSample(const Record& rec, double f,
+                              CompensatedSample* out) {
+  CompensatedSample& s = *out;
+  s.index = rec.index;
+  s.time = rec.time;
+  s.bt = rec.bt;
+  s.flags = rec.flags;
+  s.f_interference = rec.h;
+  s.f_comp = std::isfinite(rec.h) ? f - rec.h : kNaN;
+}
+
 inline int Compensator::Take(int ready, bool flushing, CompensatedSample* out) {
   if (lag_zero_ && !keep_rows_) {
     // Without a lag an output needs no later sample: straight from the
-    // engine's outputs, the same arithmetic as Store + Finish without the
-    // round trip through the ring.
+    // engine's outputs, without the round trip through the ring.
     for (int i = 0; i < ready; ++i) {
-      const TermEngine::Output& o = engine_out_[static_cast<std::size_t>(i)];
-      CompensatedSample& s = out[i];
-      const double h = o.interference - model_.interference_mean_nT;
-      const double f = model_.scalar_sensor ? o.f : o.bt;
-      s.index = o.index;
-      s.time = o.time;
-      s.bt = o.bt;
-      s.flags = o.flags;
-      if (attitude_outside_[static_cast<std::size_t>(o.index & ring_mask_)]) {
-        s.flags |= kFlagAttitudeOutside;
-      }
-      s.f_interference = h;
-      s.f_comp = std::isfinite(h) ? f - h : kNaN;
+      const Record r = ToRecord(engine_out_[static_cast<std::size_t>(i)]);
+      WriteSample(r, r.f, &out[i]);
     }
     received_ += static_cast<std::uint64_t>(ready);
     emitted_ = received_;
@@ -133,21 +147,11 @@ int Compensator::Flush(CompensatedSample* out) {
 }
 
 void Compensator::Store(const TermEngine::Output& o) {
-  Record& r = ring_[static_cast<std::size_t>(o.index & ring_mask_)];
-  r.index = o.index;
-  r.segment = o.segment;
-  r.time = o.time;
-  r.bt = o.bt;
-  r.f = model_.scalar_sensor ? o.f : o.bt;
-  r.h = o.interference - model_.interference_mean_nT;
-  r.flags = o.flags;
+  ring_[static_cast<std::size_t>(o.index & ring_mask_)] = ToRecord(o);
   if (keep_rows_) {
     std::copy(o.row, o.row + term_count(),
               rows_.begin() + static_cast<std::ptrdiff_t>(
                                   (o.index & ring_mask_) * term_count()));
-  }
-  if (attitude_outside_[static_cast<std::size_t>(o.index & ring_mask_)]) {
-    r.flags |= kFlagAttitudeOutside;
   }
   ++received_;
 }
@@ -169,13 +173,8 @@ int Compensator::Drain(bool flushing, CompensatedSample* out, int n) {
 
 void Compensator::Finish(std::uint64_t r, CompensatedSample* out) {
   const Record& rec = At(r);
-  CompensatedSample& s = *out;
-  s.index = rec.index;
-  s.time = rec.time;
-  s.bt = rec.bt;
-  s.flags = rec.flags;
-  s.f_interference = rec.h;
   double f = rec.f;
+  bool clamped = false;
   if (!lag_zero_ && std::isfinite(rec.h)) {
     // Bounds of this sample's segment within reach.
     const std::int64_t lo_reach = static_cast<std::int64_t>(r) + lag_floor_ - 1;
@@ -191,7 +190,6 @@ void Compensator::Finish(std::uint64_t r, CompensatedSample* out) {
       ++hi;
     }
     double p[4];
-    bool clamped = false;
     for (int j = 0; j < 4; ++j) {
       std::int64_t q = static_cast<std::int64_t>(r) + lag_floor_ - 1 + j;
       if (q < lo || q > hi) {
@@ -201,9 +199,9 @@ void Compensator::Finish(std::uint64_t r, CompensatedSample* out) {
       p[j] = At(static_cast<std::uint64_t>(q)).f;
     }
     f = CatmullRom(p[0], p[1], p[2], p[3], lag_frac_);
-    if (clamped) s.flags |= kFlagLagEdge;
   }
-  s.f_comp = std::isfinite(rec.h) ? f - rec.h : kNaN;
+  WriteSample(rec, f, out);
+  if (clamped) out->flags |= kFlagLagEdge;
 }
 
 }  // namespace fluxtrim::models

@@ -106,6 +106,13 @@ class Compensator {
   };
   // Turns the engine's `ready` outputs into samples (out), returns how many.
   int Take(int ready, bool flushing, CompensatedSample* out);
+  // An engine output as the compensator keeps it (f, h without the mean
+  // level, the attitude flag): the one rule of both the ring and the
+  // lag-free path.
+  Record ToRecord(const TermEngine::Output& o) const;
+  // The sample of a record, with f the scalar reading at the sample's time
+  // (lag applied): f_comp = f - h (NaN for a bad sample).
+  static void WriteSample(const Record& rec, double f, CompensatedSample* out);
   void Store(const TermEngine::Output& output);
   int Drain(bool flushing, CompensatedSample* out, int n);
   void Finish(std::uint64_t index, CompensatedSample* out);
