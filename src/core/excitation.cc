@@ -350,19 +350,16 @@ ExcitationSummary AnalyseExcitation(const io::Table& table,
   const CompressedSystem system = Compress(a, y);
 
   // ---- determination, one term at a time -------------------------------
-  auto hold_null_direction = [&](const CompressedSystem& s, double threshold,
-                                 const char* what) {
-    return HoldNullDirection(s, threshold, what, &held, &reason);
-  };
   const double n_rows = static_cast<double>(rows);
   for (std::size_t round = 0; round <= p; ++round) {
     if (FreeColumns(held).empty()) break;
-    if (hold_null_direction(shape_system, options.shape_null_singular_value,
-                            "not excited independently of the other terms")) {
+    if (HoldNullDirection(shape_system, options.shape_null_singular_value,
+                          "not excited independently of the other terms",
+                          &held, &reason)) {
       continue;
     }
-    if (hold_null_direction(system, kNullSingularValue,
-                            "no independent excitation")) {
+    if (HoldNullDirection(system, kNullSingularValue,
+                          "no independent excitation", &held, &reason)) {
       continue;
     }
     const std::vector<int> free = FreeColumns(held);

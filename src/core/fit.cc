@@ -998,10 +998,6 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   // Determination: hold null or unexcited directions, undetermined or
   // implausible terms one at a time (the worst first) until every free term
   // is determined; then solve.
-  auto hold_null_direction = [&](const CompressedSystem& system,
-                                 double threshold, const char* what) {
-    return HoldNullDirection(system, threshold, what, &held, &notes);
-  };
   auto determine = [&](const CompressedSystem& base) {
     held = w.unexcited;
     for (std::size_t j = 0; j < w.p; ++j) {
@@ -1009,13 +1005,14 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
     }
     for (std::size_t round = 0; round <= w.p; ++round) {
       if (FreeColumns(held).empty()) break;
-      if (hold_null_direction(shape_system, kShapeNullSingularValue,
-                              "not excited independently of the other terms")) {
+      if (HoldNullDirection(shape_system, kShapeNullSingularValue,
+                            "not excited independently of the other terms",
+                            &held, &notes)) {
         continue;
       }
       const CompressedSystem augmented = Augment(base, w, held);
-      if (hold_null_direction(augmented, kNullSingularValue,
-                              "no independent excitation")) {
+      if (HoldNullDirection(augmented, kNullSingularValue,
+                            "no independent excitation", &held, &notes)) {
         continue;
       }
       Solution s = SolveWith(w, augmented, held, fixed_lambda, true);
@@ -1101,9 +1098,6 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   clock.Mark("maneuvers (wait)");
   // Condition number of the equilibrated matrix over its excited columns.
   std::vector<double> band_full = BandPassRuns(w, w.field);
-  // Whether band_full is the band-passed `aligned` field (not `cleaned`):
-  // then it need not be filtered again for the lag search and the metrics.
-  bool band_of_aligned = true;
   Eigen::VectorXd y = AtFitRows(w, band_full);
   const CompressedSystem first_system = design.Compress(y);
   {
@@ -1207,7 +1201,6 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
         }
       }
       band_full = BandPassRuns(w, cleaned);
-      band_of_aligned = false;
       y = AtFitRows(w, band_full);
       Solution next = determine(design.Compress(y));
       if (!next.ok) break;
@@ -1222,14 +1215,12 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
   clock.Mark("robust");
   // ---- lag -----------------------------------------------------------------
   if (w.scalar && options.estimate_lag && options.max_lag_s > 0) {
-    // Searched on the band-passed (cleaned) field at lag 0; without the
-    // robust loss that is band_full as it stands.
-    std::vector<double> refiltered;
-    if (robust || !band_of_aligned) {
-      refiltered = BandPassRuns(w, robust ? cleaned : aligned);
-    }
+    // Searched on the band-passed cleaned field at lag 0; without the
+    // robust loss that is band_full as it stands (the band-passed field).
+    std::vector<double> band_cleaned;
+    if (robust) band_cleaned = BandPassRuns(w, cleaned);
     const LagResult lag =
-        EstimateLag(w, robust || !band_of_aligned ? refiltered : band_full, held,
+        EstimateLag(w, robust ? band_cleaned : band_full, held,
                     solution.lambda, options.max_lag_s * w.rate);
     if (lag.ok) {
       result.lag_estimated = true;
@@ -1245,7 +1236,6 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
                            options.gap_factor);
       if (robust) cleaned = aligned;
       band_full = BandPassRuns(w, aligned);
-      band_of_aligned = true;
       y = AtFitRows(w, band_full);
       solution = determine(design.Compress(y));
       if (!solution.ok) {
@@ -1270,8 +1260,9 @@ FitResult FitModel(const io::Table& table, const FitOptions& options) {
         "%) treated as outliers by the " + result.loss +
         " loss (reading moved by more than " + Sci(result.loss_scale_nT) + " nT)");
   }
-  // Metrics below use the measured (aligned, not cleaned) field.
-  if (!band_of_aligned) {
+  // Metrics below use the measured (aligned, not cleaned) field; without
+  // the robust loss band_full is already that.
+  if (robust) {
     band_full = BandPassRuns(w, aligned);
     y = AtFitRows(w, band_full);
   }
