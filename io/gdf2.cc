@@ -697,12 +697,7 @@ struct Gdf2Reader::Impl {
   }
 
   void PrepareChunk(Table* chunk) const {
-    bool same = chunk->cols() == channels.size();
-    for (std::size_t i = 0; same && i < channels.size(); ++i) {
-      same = chunk->channel(i).info.name == channels[i].name;
-    }
-    if (!same) *chunk = Table(channels);
-    chunk->ClearRows();
+    chunk->ResetRows(channels);
     if (time_index >= 0) {
       chunk->set_time_channel(
           channels[static_cast<std::size_t>(time_index)].name);

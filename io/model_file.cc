@@ -1,13 +1,9 @@
 #include "io/model_file.h"
 
 #include <cmath>
-#include <cstdio>
-#include <fstream>
 #include <set>
-#include <sstream>
 #include <stdexcept>
 
-#include <google/protobuf/io/tokenizer.h>
 #include <google/protobuf/text_format.h>
 
 #include "io/error.h"
