@@ -88,7 +88,7 @@ inline Compensator::Record Compensator::ToRecord(const TermEngine::Output& o) co
 }
 
 inline void Compensator::WriteSample(const Record& rec, double f,
-                              CompensatedSample* out) {
+                                     CompensatedSample* out) {
   CompensatedSample& s = *out;
   s.index = rec.index;
   s.time = rec.time;

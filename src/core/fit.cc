@@ -23,6 +23,7 @@
 #include "models/huge_pages.h"
 #include "src/core/lag.h"
 #include "src/core/least_squares.h"
+#include "src/core/metrics.h"
 #include "src/core/ridge.h"
 
 namespace fluxtrim::core {
@@ -640,15 +641,8 @@ TermInputs SelectTermInputs(const io::Table& table,
   for (const std::string& name : aux_names) {
     const auto& col = table.Column(name);
     in.aux.push_back(col.data());
-    double s = 0;
-    std::size_t c = 0;
-    for (double v : col) {
-      if (std::isfinite(v)) {
-        s += v * v;
-        ++c;
-      }
-    }
-    in.aux_rms.push_back(c ? std::sqrt(s / static_cast<double>(c)) : 0.0);
+    const double rms = FiniteRms(col);
+    in.aux_rms.push_back(std::isnan(rms) ? 0.0 : rms);
   }
   return in;
 }

@@ -19,6 +19,7 @@
 #include "src/core/butterworth.h"
 #include "src/core/calibrate.h"
 #include "src/core/lag.h"
+#include "src/core/metrics.h"
 
 namespace fluxtrim::core {
 namespace {
@@ -186,18 +187,6 @@ class TlCost : public ceres::CostFunction {
   }
   const Data* d_;
 };
-
-double FiniteRms(const std::vector<double>& v) {
-  double s = 0;
-  std::size_t n = 0;
-  for (double x : v) {
-    if (std::isfinite(x)) {
-      s += x * x;
-      ++n;
-    }
-  }
-  return n ? std::sqrt(s / static_cast<double>(n)) : kNaN;
-}
 
 // |B(theta)| - f over the magnitude samples.
 std::vector<double> MagnitudeResiduals(const CalibrationData& data,

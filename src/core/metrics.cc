@@ -46,6 +46,18 @@ double Rms(const double* x, std::size_t n) {
 
 double Rms(const std::vector<double>& x) { return Rms(x.data(), x.size()); }
 
+double FiniteRms(const std::vector<double>& x) {
+  double sum = 0;
+  std::size_t count = 0;
+  for (double v : x) {
+    if (std::isfinite(v)) {
+      sum += v * v;
+      ++count;
+    }
+  }
+  return count > 0 ? std::sqrt(sum / static_cast<double>(count)) : kNaN;
+}
+
 double StandardDeviation(const double* x, std::size_t n) {
   // Two passes (mean, then squared deviations): the one-pass formula loses
   // everything to cancellation on a 50000 nT field with 0.1 nT variation.

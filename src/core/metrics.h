@@ -13,9 +13,12 @@ namespace fluxtrim::core {
 double PeakToPeak(const double* x, std::size_t n);
 double PeakToPeak(const std::vector<double>& x);
 
-// Root mean square of the finite samples.
+// Root mean square of the samples that are not NaN (an infinity makes it
+// infinite); NaN when none.
 double Rms(const double* x, std::size_t n);
 double Rms(const std::vector<double>& x);
+// RMS over the finite values (NaN and infinities skipped); NaN when none.
+double FiniteRms(const std::vector<double>& x);
 
 // Population standard deviation (divides by N, numpy.std default) of the
 // finite samples.
