@@ -10,8 +10,6 @@
 
 namespace fluxtrim::core {
 
-using models::AdviseHugePages;
-using models::HugeAssign;
 using models::HugeVector;
 
 std::vector<SampleRun> ContiguousRuns(const std::vector<double>& time,

@@ -16,8 +16,6 @@
 
 namespace fluxtrim::core {
 
-using models::AdviseHugePages;
-using models::HugeAssign;
 using models::HugeVector;
 namespace {
 
