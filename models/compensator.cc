@@ -39,16 +39,42 @@ Compensator::Compensator(const CompensatorModel& model)
   lag_floor_ = static_cast<int>(std::floor(u));
   lag_frac_ = u - lag_floor_;
   lag_zero_ = model_.lag_s == 0.0;
-  const int k = engine_.half_width();
-  const int reach = std::abs(lag_floor_) + 3;
-  // A power-of-two ring: slots are masks, not divisions.
+  const std::size_t k = static_cast<std::size_t>(engine_.half_width());
+  const std::size_t reach = static_cast<std::size_t>(std::abs(lag_floor_) + 3);
+  max_outputs_ = engine_.max_outputs() + std::max(0, lag_floor_ + 2) + 2;
+  // A power-of-two ring (slots are masks, not divisions) holding a block,
+  // the records waiting for the lag and those the lag reads back.
   std::size_t slots = 1;
-  while (slots < static_cast<std::size_t>(2 * (k + reach) + 8)) slots *= 2;
+  while (slots < kMaxBlock + 2 * (k + reach) + 8) slots *= 2;
   ring_.resize(slots);
   ring_mask_ = slots - 1;
-  attitude_outside_.assign(ring_.size(), 0);
-  engine_out_.resize(static_cast<std::size_t>(engine_.max_outputs()));
-  max_outputs_ = engine_.max_outputs() + std::max(0, lag_floor_ + 2) + 2;
+  attitude_outside_.assign(slots, 0);
+  const std::size_t m = engine_.max_block_outputs();
+  for (std::vector<double>* v :
+       {&eng_time_, &eng_bt_, &eng_f_, &eng_interference_}) {
+    v->assign(m, 0.0);
+  }
+  eng_flags_.assign(m, 0);
+  eng_segment_.assign(m, 0);
+  engine_cols_.time = eng_time_.data();
+  engine_cols_.bt = eng_bt_.data();
+  engine_cols_.f = eng_f_.data();
+  engine_cols_.interference = eng_interference_.data();
+  engine_cols_.flags = eng_flags_.data();
+  engine_cols_.segment = eng_segment_.data();
+  if (model_.has_sensor) {
+    for (std::vector<double>* v : {&cal_x_, &cal_y_, &cal_z_}) {
+      v->assign(kMaxBlock, 0.0);
+    }
+  }
+  aux_columns_.assign(engine_.options().terms.aux.size(), nullptr);
+  const std::size_t one = static_cast<std::size_t>(max_outputs_);
+  for (std::vector<double>* v : {&one_time_, &one_f_comp_, &one_f_int_, &one_bt_}) {
+    v->assign(one, 0.0);
+  }
+  one_flags_.assign(one, 0);
+  one_ = {one_time_.data(), one_f_comp_.data(), one_f_int_.data(),
+          one_bt_.data(), one_flags_.data()};
 }
 
 void Compensator::SetCoefficients(const double* coefficients) {
@@ -66,142 +92,201 @@ void Compensator::SetCoefficients(const double* coefficients,
 void Compensator::KeepTermRows() {
   keep_rows_ = true;
   rows_.assign(ring_.size() * term_count(), 0.0);
+  eng_rows_.assign(engine_.max_block_outputs() * term_count(), 0.0);
+  engine_cols_.rows = eng_rows_.data();
 }
 
 int Compensator::latency_samples() const {
   return engine_.half_width() + (lag_zero_ ? 0 : std::max(0, lag_floor_ + 2));
 }
 
-inline Compensator::Record Compensator::ToRecord(const TermEngine::Output& o) const {
-  Record r;
-  r.index = o.index;
-  r.segment = o.segment;
-  r.time = o.time;
-  r.bt = o.bt;
-  r.f = model_.scalar_sensor ? o.f : o.bt;
-  r.h = o.interference - model_.interference_mean_nT;
-  r.flags = o.flags;
-  if (attitude_outside_[static_cast<std::size_t>(o.index & ring_mask_)]) {
-    r.flags |= kFlagAttitudeOutside;
-  }
-  return r;
-}
-
 inline void Compensator::WriteSample(const Record& rec, double f,
-                                     CompensatedSample* out) {
-  CompensatedSample& s = *out;
-  s.index = rec.index;
-  s.time = rec.time;
-  s.bt = rec.bt;
-  s.flags = rec.flags;
-  s.f_interference = rec.h;
-  s.f_comp = std::isfinite(rec.h) ? f - rec.h : kNaN;
+                                     std::uint32_t flags,
+                                     const CompensatedColumns& out,
+                                     std::size_t i) {
+  if (out.time) out.time[i] = rec.time;
+  if (out.bt) out.bt[i] = rec.bt;
+  if (out.flags) out.flags[i] = flags;
+  if (out.f_interference) out.f_interference[i] = rec.h;
+  if (out.f_comp) out.f_comp[i] = std::isfinite(rec.h) ? f - rec.h : kNaN;
 }
 
-inline int Compensator::Take(int ready, bool flushing, CompensatedSample* out) {
-  if (lag_zero_ && !keep_rows_) {
-    // Without a lag an output needs no later sample: straight from the
-    // engine's outputs, without the round trip through the ring.
-    for (int i = 0; i < ready; ++i) {
-      const Record r = ToRecord(engine_out_[static_cast<std::size_t>(i)]);
-      WriteSample(r, r.f, &out[i]);
-    }
-    received_ += static_cast<std::uint64_t>(ready);
-    emitted_ = received_;
-    return ready;
+std::size_t Compensator::PushBlock(std::size_t n, const SampleColumns& in,
+                                   const CompensatedColumns& out) {
+  if (n > kMaxBlock) {
+    throw std::invalid_argument("Compensator::PushBlock: block longer than kMaxBlock");
   }
-  for (int i = 0; i < ready; ++i) Store(engine_out_[static_cast<std::size_t>(i)]);
-  return Drain(flushing, out, 0);
-}
-
-int Compensator::Push(double time, const double b[3], double f,
-                      const double* aux, double roll_deg, double pitch_deg,
-                      double temp_c, CompensatedSample* out) {
-  double field[3] = {b[0], b[1], b[2]};
+  const double *bx = in.bx, *by = in.by, *bz = in.bz;
   if (model_.has_sensor) {
-    const Vec3 v = sensor_({b[0], b[1], b[2]}, temp_c);
-    field[0] = v.x;
-    field[1] = v.y;
-    field[2] = v.z;
+    for (std::size_t i = 0; i < n; ++i) {
+      const double temp =
+          in.temp_c ? in.temp_c[i] : model_.sensor.reference_temp_c;
+      const Vec3 v = sensor_({in.bx[i], in.by[i], in.bz[i]}, temp);
+      cal_x_[i] = v.x;
+      cal_y_[i] = v.y;
+      cal_z_[i] = v.z;
+    }
+    bx = cal_x_.data();
+    by = cal_y_.data();
+    bz = cal_z_.data();
   }
   // The attitude flag is decided now and picked up when the engine emits
-  // this sample (at most k + 1 pushes later, well inside the ring).
-  // (Comparisons with NaN are false: a missing angle is never outside;
-  // bitwise | keeps the check free of branches.)
-  bool outside = false;
-  if (model_.has_attitude_range) {
-    outside = (roll_deg < model_.roll_min_deg) | (roll_deg > model_.roll_max_deg) |
-              (pitch_deg < model_.pitch_min_deg) | (pitch_deg > model_.pitch_max_deg);
+  // the sample (at most k + 1 + kMaxBlock pushes later, inside the ring).
+  // Comparisons with NaN are false: a missing angle is never outside;
+  // bitwise | keeps the check free of branches.
+  for (std::size_t i = 0; i < n; ++i) {
+    bool outside = false;
+    if (model_.has_attitude_range) {
+      const double roll = in.roll_deg ? in.roll_deg[i] : kNaN;
+      const double pitch = in.pitch_deg ? in.pitch_deg[i] : kNaN;
+      outside = (roll < model_.roll_min_deg) | (roll > model_.roll_max_deg) |
+                (pitch < model_.pitch_min_deg) | (pitch > model_.pitch_max_deg);
+    }
+    attitude_outside_[static_cast<std::size_t>((pushed_ + i) & ring_mask_)] =
+        outside ? 1 : 0;
   }
-  attitude_outside_[static_cast<std::size_t>(pushed_ & ring_mask_)] =
-      outside ? 1 : 0;
-  ++pushed_;
-  const double scalar = model_.scalar_sensor ? f : kNaN;
-  const int ready = engine_.Push(time, field, scalar, aux, engine_out_.data());
+  pushed_ += n;
+  const std::size_t ready =
+      engine_.PushBlock(n, in.time, bx, by, bz,
+                        model_.scalar_sensor ? in.f : nullptr, in.aux,
+                        engine_cols_);
   return Take(ready, false, out);
 }
 
-int Compensator::Flush(CompensatedSample* out) {
-  const int ready = engine_.Flush(engine_out_.data());
-  return Take(ready, true, out);
+std::size_t Compensator::FlushBlock(const CompensatedColumns& out) {
+  return Take(engine_.FlushBlock(engine_cols_), true, out);
 }
 
-void Compensator::Store(const TermEngine::Output& o) {
-  ring_[static_cast<std::size_t>(o.index & ring_mask_)] = ToRecord(o);
+std::size_t Compensator::Take(std::size_t ready, bool flushing,
+                              const CompensatedColumns& out) {
+  const std::uint64_t first = received_;
+  const double mean = model_.interference_mean_nT;
   if (keep_rows_) {
-    std::copy(o.row, o.row + term_count(),
-              rows_.begin() + static_cast<std::ptrdiff_t>(
-                                  (o.index & ring_mask_) * term_count()));
+    for (std::size_t i = 0; i < ready; ++i) {
+      const double* row = eng_rows_.data() + i * term_count();
+      std::copy(row, row + term_count(),
+                rows_.begin() + static_cast<std::ptrdiff_t>(
+                                    ((first + i) & ring_mask_) * term_count()));
+    }
   }
-  ++received_;
+  received_ += ready;
+  if (lag_zero_) {
+    // Without a lag an output needs no later sample: straight from the
+    // engine's outputs, without the round trip through the ring.
+    for (std::size_t i = 0; i < ready; ++i) {
+      Record r;
+      r.segment = eng_segment_[i];
+      r.time = eng_time_[i];
+      r.bt = eng_bt_[i];
+      r.f = model_.scalar_sensor ? eng_f_[i] : eng_bt_[i];
+      r.h = eng_interference_[i] - mean;
+      std::uint32_t flags = eng_flags_[i];
+      if (attitude_outside_[static_cast<std::size_t>((first + i) & ring_mask_)]) {
+        flags |= kFlagAttitudeOutside;
+      }
+      WriteSample(r, r.f, flags, out, i);
+    }
+    emitted_ = received_;
+    return ready;
+  }
+  for (std::size_t i = 0; i < ready; ++i) {
+    Record& r = ring_[static_cast<std::size_t>((first + i) & ring_mask_)];
+    r.segment = eng_segment_[i];
+    r.time = eng_time_[i];
+    r.bt = eng_bt_[i];
+    r.f = model_.scalar_sensor ? eng_f_[i] : eng_bt_[i];
+    r.h = eng_interference_[i] - mean;
+    r.flags = eng_flags_[i];
+    if (attitude_outside_[static_cast<std::size_t>((first + i) & ring_mask_)]) {
+      r.flags |= kFlagAttitudeOutside;
+    }
+  }
+  return Drain(flushing, out);
 }
 
-int Compensator::Drain(bool flushing, CompensatedSample* out, int n) {
+std::size_t Compensator::Drain(bool flushing, const CompensatedColumns& out) {
   const std::uint64_t reach_hi =
-      lag_zero_ ? 0 : static_cast<std::uint64_t>(std::max(0, lag_floor_ + 2));
+      static_cast<std::uint64_t>(std::max(0, lag_floor_ + 2));
+  std::size_t n = 0;
   while (emitted_ < received_) {
     const std::uint64_t r = emitted_;
     const Record& rec = At(r);
     const bool segment_closed = At(received_ - 1).segment != rec.segment;
     if (!flushing && !segment_closed && received_ <= r + reach_hi) break;
-    Finish(r, out + n);
+    bool clamped = false;
+    const double f = std::isfinite(rec.h) ? LaggedF(r, &clamped) : rec.f;
+    WriteSample(rec, f, clamped ? rec.flags | kFlagLagEdge : rec.flags, out, n);
     ++n;
     ++emitted_;
   }
   return n;
 }
 
-void Compensator::Finish(std::uint64_t r, CompensatedSample* out) {
+double Compensator::LaggedF(std::uint64_t r, bool* clamped) const {
   const Record& rec = At(r);
-  double f = rec.f;
-  bool clamped = false;
-  if (!lag_zero_ && std::isfinite(rec.h)) {
-    // Bounds of this sample's segment within reach.
-    const std::int64_t lo_reach = static_cast<std::int64_t>(r) + lag_floor_ - 1;
-    const std::int64_t hi_reach = static_cast<std::int64_t>(r) + lag_floor_ + 2;
-    std::int64_t lo = static_cast<std::int64_t>(r);
-    while (lo > 0 && lo > lo_reach &&
-           At(static_cast<std::uint64_t>(lo - 1)).segment == rec.segment) {
-      --lo;
-    }
-    std::int64_t hi = static_cast<std::int64_t>(r);
-    while (hi + 1 < static_cast<std::int64_t>(received_) && hi < hi_reach &&
-           At(static_cast<std::uint64_t>(hi + 1)).segment == rec.segment) {
-      ++hi;
-    }
-    double p[4];
-    for (int j = 0; j < 4; ++j) {
-      std::int64_t q = static_cast<std::int64_t>(r) + lag_floor_ - 1 + j;
-      if (q < lo || q > hi) {
-        clamped = true;
-        q = std::clamp(q, lo, hi);
-      }
-      p[j] = At(static_cast<std::uint64_t>(q)).f;
-    }
-    f = CatmullRom(p[0], p[1], p[2], p[3], lag_frac_);
+  // Bounds of this sample's segment within reach.
+  const std::int64_t lo_reach = static_cast<std::int64_t>(r) + lag_floor_ - 1;
+  const std::int64_t hi_reach = static_cast<std::int64_t>(r) + lag_floor_ + 2;
+  std::int64_t lo = static_cast<std::int64_t>(r);
+  while (lo > 0 && lo > lo_reach &&
+         At(static_cast<std::uint64_t>(lo - 1)).segment == rec.segment) {
+    --lo;
   }
-  WriteSample(rec, f, out);
-  if (clamped) out->flags |= kFlagLagEdge;
+  std::int64_t hi = static_cast<std::int64_t>(r);
+  while (hi + 1 < static_cast<std::int64_t>(received_) && hi < hi_reach &&
+         At(static_cast<std::uint64_t>(hi + 1)).segment == rec.segment) {
+    ++hi;
+  }
+  double p[4];
+  for (int j = 0; j < 4; ++j) {
+    std::int64_t q = static_cast<std::int64_t>(r) + lag_floor_ - 1 + j;
+    if (q < lo || q > hi) {
+      *clamped = true;
+      q = std::clamp(q, lo, hi);
+    }
+    p[j] = At(static_cast<std::uint64_t>(q)).f;
+  }
+  return CatmullRom(p[0], p[1], p[2], p[3], lag_frac_);
+}
+
+int Compensator::ToSamples(std::size_t n, std::uint64_t first,
+                           CompensatedSample* out) const {
+  for (std::size_t i = 0; i < n; ++i) {
+    CompensatedSample& s = out[i];
+    s.index = first + i;
+    s.time = one_.time[i];
+    s.f_comp = one_.f_comp[i];
+    s.f_interference = one_.f_interference[i];
+    s.bt = one_.bt[i];
+    s.flags = one_.flags[i];
+  }
+  return static_cast<int>(n);
+}
+
+int Compensator::Push(double time, const double b[3], double f,
+                      const double* aux, double roll_deg, double pitch_deg,
+                      double temp_c, CompensatedSample* out) {
+  // One sample as columns of length one.
+  for (std::size_t a = 0; a < aux_columns_.size(); ++a) {
+    aux_columns_[a] = aux + a;
+  }
+  SampleColumns in;
+  in.time = &time;
+  in.bx = &b[0];
+  in.by = &b[1];
+  in.bz = &b[2];
+  in.f = &f;
+  in.roll_deg = &roll_deg;
+  in.pitch_deg = &pitch_deg;
+  in.temp_c = &temp_c;
+  in.aux = aux_columns_.data();
+  const std::uint64_t first = emitted_;
+  return ToSamples(PushBlock(1, in, one_), first, out);
+}
+
+int Compensator::Flush(CompensatedSample* out) {
+  const std::uint64_t first = emitted_;
+  return ToSamples(FlushBlock(one_), first, out);
 }
 
 }  // namespace fluxtrim::models

@@ -52,6 +52,33 @@ struct CompensatedSample {
   std::uint32_t flags = 0;     // SampleFlag bits, kFlagLagEdge
 };
 
+// Input columns of Compensator::PushBlock: entry i of each array is sample
+// i of the block. Null where the recording has no such channel: f (no scalar
+// sensor), roll and pitch (no attitude check), temp (the calibration's
+// reference temperature). aux: one column per model aux channel.
+struct SampleColumns {
+  const double* time = nullptr;
+  const double* bx = nullptr;
+  const double* by = nullptr;
+  const double* bz = nullptr;
+  const double* f = nullptr;
+  const double* roll_deg = nullptr;
+  const double* pitch_deg = nullptr;
+  const double* temp_c = nullptr;
+  const double* const* aux = nullptr;
+};
+
+// Output columns of Compensator::PushBlock and FlushBlock: entry i is the
+// i-th output of the call (input sample index emitted() + i at the call),
+// max_block_outputs() entries each; a null array is not written.
+struct CompensatedColumns {
+  double* time = nullptr;
+  double* f_comp = nullptr;
+  double* f_interference = nullptr;
+  double* bt = nullptr;
+  std::uint32_t* flags = nullptr;
+};
+
 class Compensator {
  public:
   // Throws std::invalid_argument when the model is inconsistent (coefficient
@@ -70,7 +97,20 @@ class Compensator {
   // End of input: emits every pending sample.
   int Flush(CompensatedSample* out);
 
+  // Samples [0, n) of columns, n <= kMaxBlock: the same outputs as n calls
+  // of Push, bit for bit (a Push is a block of one). Returns the number of
+  // outputs written to out (<= max_block_outputs()).
+  static constexpr std::size_t kMaxBlock = TermEngine::kMaxBlock;
+  std::size_t PushBlock(std::size_t n, const SampleColumns& in,
+                        const CompensatedColumns& out);
+  std::size_t FlushBlock(const CompensatedColumns& out);
+
   int max_outputs() const { return max_outputs_; }
+  std::size_t max_block_outputs() const {
+    return kMaxBlock + static_cast<std::size_t>(max_outputs_);
+  }
+  // Index of the next output (outputs returned so far).
+  std::uint64_t emitted() const { return emitted_; }
   // Samples between an input and its output (fixed).
   int latency_samples() const;
   std::size_t term_count() const { return engine_.term_count(); }
@@ -89,9 +129,10 @@ class Compensator {
 
   // Term rows of emitted samples, for observers (core/adaptive.h). Off by
   // default (the hot path then copies nothing). When on, TermRow(s.index)
-  // for every sample s returned by the last Push or Flush gives its row
-  // (term_count() values, column order of tolles_lawson.h), valid until the
-  // next Push or Flush. Call before the first Push; allocates once.
+  // for every sample s returned by the last Push, Flush, PushBlock or
+  // FlushBlock gives its row (term_count() values, column order of
+  // tolles_lawson.h), valid until the next call. Call before the first
+  // Push; allocates once.
   void KeepTermRows();
   const double* TermRow(std::uint64_t index) const {
     return rows_.data() +
@@ -100,22 +141,23 @@ class Compensator {
 
  private:
   struct Record {
-    std::uint64_t index, segment;
+    std::uint64_t segment;
     double time, f, h, bt;
     std::uint32_t flags;
   };
-  // Turns the engine's `ready` outputs into samples (out), returns how many.
-  int Take(int ready, bool flushing, CompensatedSample* out);
-  // An engine output as the compensator keeps it (f, h without the mean
-  // level, the attitude flag): the one rule of both the ring and the
-  // lag-free path.
-  Record ToRecord(const TermEngine::Output& o) const;
+  // Turns the engine's `ready` outputs (in engine_cols_) into samples,
+  // returns how many.
+  std::size_t Take(std::size_t ready, bool flushing,
+                   const CompensatedColumns& out);
+  int ToSamples(std::size_t n, std::uint64_t first, CompensatedSample* out) const;
   // The sample of a record, with f the scalar reading at the sample's time
   // (lag applied): f_comp = f - h (NaN for a bad sample).
-  static void WriteSample(const Record& rec, double f, CompensatedSample* out);
-  void Store(const TermEngine::Output& output);
-  int Drain(bool flushing, CompensatedSample* out, int n);
-  void Finish(std::uint64_t index, CompensatedSample* out);
+  static void WriteSample(const Record& rec, double f, std::uint32_t flags,
+                          const CompensatedColumns& out, std::size_t i);
+  std::size_t Drain(bool flushing, const CompensatedColumns& out);
+  // f at the time of record r plus the lag; sets *clamped when the
+  // interpolation reached past the ends of the segment.
+  double LaggedF(std::uint64_t r, bool* clamped) const;
   const Record& At(std::uint64_t index) const {
     return ring_[static_cast<std::size_t>(index & ring_mask_)];
   }
@@ -123,9 +165,21 @@ class Compensator {
   CompensatorModel model_;
   SensorCorrector sensor_;  // model_.sensor, trigonometry done once
   TermEngine engine_;
-  std::vector<TermEngine::Output> engine_out_;
+  // Engine outputs of a block.
+  std::vector<double> eng_time_, eng_bt_, eng_f_, eng_interference_,
+      eng_rows_;
+  std::vector<std::uint32_t> eng_flags_;
+  std::vector<std::uint64_t> eng_segment_;
+  TermEngine::Columns engine_cols_;
+  // Calibrated fluxgate of a block, and Push's sample as columns.
+  std::vector<double> cal_x_, cal_y_, cal_z_;
+  std::vector<const double*> aux_columns_;
+  // Outputs of Push and Flush, as columns.
+  std::vector<double> one_time_, one_f_comp_, one_f_int_, one_bt_;
+  std::vector<std::uint32_t> one_flags_;
+  CompensatedColumns one_;
   std::vector<std::uint8_t> attitude_outside_;  // by index & ring_mask_
-  std::vector<Record> ring_;
+  std::vector<Record> ring_;  // records by index & ring_mask_ (with a lag)
   std::vector<double> rows_;  // by index & ring_mask_, when KeepTermRows()
   std::uint64_t ring_mask_ = 0;  // ring size (a power of two) - 1
   bool keep_rows_ = false;

@@ -1,5 +1,6 @@
 #include "models/tolles_lawson.h"
 
+#include <algorithm>
 #include <cmath>
 #include <cstdint>
 #include <limits>
@@ -175,16 +176,37 @@ TermEngine::TermEngine(const Options& options) : options_(options) {
   term_count_ = TermCount(options_.terms);
   aux_count_ = options_.terms.aux.size();
   max_step_s_ = options_.gap_factor / options_.sample_rate_hz;
-  const int k = options_.half_width;
-  ring_size_ = 1;
-  while (ring_size_ < static_cast<std::size_t>(2 * k + 1)) ring_size_ *= 2;
-  ring_mask_ = ring_size_ - 1;
-  ring_.resize(ring_size_);
-  aux_store_.assign(ring_size_ * aux_count_, 0.0);
-  rows_.assign(static_cast<std::size_t>(max_outputs()) * term_count_, 0.0);
+  const std::size_t k = static_cast<std::size_t>(options_.half_width);
+  std::size_t slots = 1;
+  while (slots < kMaxBlock + 2 * k + 1) slots *= 2;
+  ring_mask_ = slots - 1;
+  for (std::vector<double>* v : {&time_, &f_, &bt_, &cx_, &cy_, &cz_}) {
+    v->assign(slots, 0.0);
+  }
+  aux_.assign(slots * aux_count_, 0.0);
+  segment_.assign(slots, 0);
+  flags_.assign(slots, 0);
+  valid_.assign(slots, 0);
   coefficients_.assign(term_count_, 0.0);
+  row_.assign(term_count_, 0.0);
+  aux_columns_.assign(aux_count_, nullptr);
   const double dt = 1.0 / options_.sample_rate_hz;
-  for (int j = -k; j <= k; ++j) weights_.push_back(DerivativeWeight(k, j, dt));
+  for (int j = -options_.half_width; j <= options_.half_width; ++j) {
+    weights_.push_back(DerivativeWeight(options_.half_width, j, dt));
+  }
+  const std::size_t m = static_cast<std::size_t>(max_outputs());
+  for (std::vector<double>* v :
+       {&one_time_, &one_bt_, &one_f_, &one_interference_}) {
+    v->assign(m, 0.0);
+  }
+  one_c_.assign(3 * m, 0.0);
+  one_dc_.assign(3 * m, 0.0);
+  one_rows_.assign(m * term_count_, 0.0);
+  one_flags_.assign(m, 0);
+  one_segment_.assign(m, 0);
+  one_ = {one_time_.data(), one_bt_.data(), one_f_.data(),
+          one_interference_.data(), one_flags_.data(), one_segment_.data(),
+          one_c_.data(), one_dc_.data(), one_rows_.data()};
 }
 
 void TermEngine::SetCoefficients(const double* coefficients) {
@@ -192,77 +214,23 @@ void TermEngine::SetCoefficients(const double* coefficients) {
 }
 
 void TermEngine::Reset() {
-  next_row_ = 0;
-  next_index_ = 0;
+  pushed_ = 0;
+  emitted_ = 0;
+  ready_ = 0;
   segments_ = 0;
   segment_length_ = 0;
-  emitted_ = 0;
   last_time_ = 0.0;
 }
 
-int TermEngine::Emit(std::size_t position, bool derivative_valid,
-                     Output* out) {
-  const Pending& p = ring_[Slot(position)];
-  Output& o = *out;
-  o.index = p.index;
-  o.segment = p.segment;
-  o.time = p.time;
-  o.bt = p.bt;
-  o.f = p.f;
-  o.flags = p.flags;
-  // Local sums: the output may alias nothing the compiler can prove, so
-  // accumulating in it would store on every window sample.
-  double dc0 = 0.0, dc1 = 0.0, dc2 = 0.0;
-  if (derivative_valid) {
-    // Savitzky-Golay weights are odd (w_-j = -w_j, w_0 = 0): the slope is
-    // sum_j w_j (c_{+j} - c_{-j}) over j = 1..k, half the multiplications
-    // and a shorter chain of additions than the full window.
-    const std::size_t k = static_cast<std::size_t>(options_.half_width);
-    for (std::size_t j = 1; j <= k; ++j) {
-      const Pending& a = ring_[Slot(position + j)];
-      const Pending& b = ring_[Slot(position - j)];
-      const double w = weights_[k + j];
-      dc0 += w * (a.c[0] - b.c[0]);
-      dc1 += w * (a.c[1] - b.c[1]);
-      dc2 += w * (a.c[2] - b.c[2]);
-    }
-  } else {
-    o.flags |= kFlagDerivativeInvalid;
-  }
-  o.c[0] = p.c[0];
-  o.c[1] = p.c[1];
-  o.c[2] = p.c[2];
-  o.dc[0] = dc0;
-  o.dc[1] = dc1;
-  o.dc[2] = dc2;
-  double* row = &rows_[static_cast<std::size_t>(next_row_++) * term_count_];
-  const double* aux =
-      aux_count_ ? &aux_store_[Slot(position) * aux_count_] : nullptr;
-  FillTermRow(options_.terms, o.c, o.dc, o.bt, aux, row);
-  o.row = row;
-  o.interference = PartialSumDot(row, coefficients_.data(), term_count_);
-  return 1;
-}
-
-int TermEngine::FlushSegment(Output* out, int n) {
-  for (std::size_t q = emitted_; q < segment_length_; ++q) {
-    n += Emit(q, false, out + n);
-  }
-  segment_length_ = 0;
-  emitted_ = 0;
-  return n;
-}
-
-int TermEngine::Push(double time, const double b[3], double f,
-                     const double* aux, Output* out) {
-  next_row_ = 0;
-  int n = 0;
-  const std::uint64_t index = next_index_++;
-  const double norm2 = b[0] * b[0] + b[1] * b[1] + b[2] * b[2];
+inline void TermEngine::Append(double time, double b0, double b1, double b2,
+                               double f, const double* const* aux,
+                               std::size_t aux_row) {
+  const std::uint64_t index = pushed_++;
+  const std::size_t q = Slot(index);
+  const double norm2 = b0 * b0 + b1 * b1 + b2 * b2;
   // Decided on the square (the same outcome: sqrt keeps 0, inf and NaN), so
   // the branch need not wait for the square root.
   const bool good = std::isfinite(time) && std::isfinite(norm2) && norm2 > 0;
-  const double norm = std::sqrt(norm2);
   bool gap = !good;
   if (good && segment_length_ > 0) {
     const double dt = time - last_time_;
@@ -270,57 +238,144 @@ int TermEngine::Push(double time, const double b[3], double f,
   }
   const bool after_gap = gap || (index > 0 && segment_length_ == 0);
   if (gap && segment_length_ > 0) {
-    ring_[Slot(segment_length_ - 1)].flags |= kFlagGapEdge;
-    n = FlushSegment(out, n);
+    // The open segment ends: its last sample is a gap edge, and every
+    // sample of it can leave (those without k successors with c' = 0).
+    flags_[Slot(index - 1)] |= kFlagGapEdge;
+    segment_length_ = 0;
+    ready_ = index;
+  }
+  time_[q] = time;
+  f_[q] = f;
+  valid_[q] = 0;
+  for (std::size_t a = 0; a < aux_count_; ++a) {
+    aux_[q * aux_count_ + a] = aux[a][aux_row];
   }
   if (!good) {
-    Output& o = out[n++];
-    o = Output();
-    o.index = index;
-    o.segment = segments_++;
-    o.time = time;
-    o.f = f;
-    o.bt = std::numeric_limits<double>::quiet_NaN();
-    for (int i = 0; i < 3; ++i) {
-      o.c[i] = std::numeric_limits<double>::quiet_NaN();
-    }
-    double* row = &rows_[static_cast<std::size_t>(next_row_++) * term_count_];
-    for (std::size_t t = 0; t < term_count_; ++t) {
-      row[t] = std::numeric_limits<double>::quiet_NaN();
-    }
-    o.row = row;
-    o.interference = std::numeric_limits<double>::quiet_NaN();
-    o.flags = kFlagBadSample | kFlagGapEdge | kFlagDerivativeInvalid;
-    return n;
+    constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
+    segment_[q] = segments_++;
+    bt_[q] = cx_[q] = cy_[q] = cz_[q] = kNaN;
+    flags_[q] = kFlagBadSample | kFlagGapEdge | kFlagDerivativeInvalid;
+    ready_ = index + 1;
+    return;
   }
+  const double norm = std::sqrt(norm2);
   const std::size_t position = segment_length_++;
   if (position == 0) ++segments_;
-  Pending& p = ring_[Slot(position)];
-  p.index = index;
-  p.segment = segments_ - 1;
-  p.time = time;
-  p.f = f;
-  p.bt = std::isfinite(f) ? f : norm;
-  for (int i = 0; i < 3; ++i) p.c[i] = b[i] / norm;
-  p.flags = after_gap ? kFlagGapEdge : 0u;
-  p.position = position;
-  p.aux_offset = Slot(position) * aux_count_;
-  for (std::size_t a = 0; a < aux_count_; ++a) {
-    aux_store_[p.aux_offset + a] = aux[a];
-  }
+  segment_[q] = segments_ - 1;
+  bt_[q] = std::isfinite(f) ? f : norm;
+  cx_[q] = b0 / norm;
+  cy_[q] = b1 / norm;
+  cz_[q] = b2 / norm;
+  flags_[q] = after_gap ? kFlagGapEdge : 0u;
   last_time_ = time;
   const std::size_t k = static_cast<std::size_t>(options_.half_width);
   if (position >= k) {
-    const std::size_t q = position - k;
-    n += Emit(q, q >= k, out + n);
-    emitted_ = q + 1;
+    // The sample k back now has its successors.
+    valid_[Slot(index - k)] = position >= 2 * k;
+    ready_ = index - k + 1;
+  }
+}
+
+std::size_t TermEngine::EmitReady(const Columns& out) {
+  const std::size_t k = static_cast<std::size_t>(options_.half_width);
+  const double* w = weights_.data() + k;
+  std::size_t n = 0;
+  for (; emitted_ < ready_; ++emitted_, ++n) {
+    const std::uint64_t s = emitted_;
+    const std::size_t q = Slot(s);
+    const double c[3] = {cx_[q], cy_[q], cz_[q]};
+    // Savitzky-Golay weights are odd (w_-j = -w_j, w_0 = 0): the slope is
+    // sum_j w_j (c_{+j} - c_{-j}) over j = 1..k, half the multiplications
+    // and a shorter chain of additions than the full window.
+    double dc[3] = {0.0, 0.0, 0.0};
+    std::uint32_t flags = flags_[q];
+    if (valid_[q]) {
+      for (std::size_t j = 1; j <= k; ++j) {
+        const std::size_t a = Slot(s + j), b = Slot(s - j);
+        dc[0] += w[j] * (cx_[a] - cx_[b]);
+        dc[1] += w[j] * (cy_[a] - cy_[b]);
+        dc[2] += w[j] * (cz_[a] - cz_[b]);
+      }
+    } else {
+      flags |= kFlagDerivativeInvalid;
+    }
+    const double bt = bt_[q];
+    double* row = out.rows ? out.rows + n * term_count_ : row_.data();
+    FillTermRow(options_.terms, c, dc, bt,
+                aux_count_ ? &aux_[q * aux_count_] : nullptr, row);
+    if (out.interference) {
+      out.interference[n] = PartialSumDot(row, coefficients_.data(), term_count_);
+    }
+    if (out.time) out.time[n] = time_[q];
+    if (out.bt) out.bt[n] = bt;
+    if (out.f) out.f[n] = f_[q];
+    if (out.flags) out.flags[n] = flags;
+    if (out.segment) out.segment[n] = segment_[q];
+    if (out.c) std::copy(c, c + 3, out.c + 3 * n);
+    if (out.dc) std::copy(dc, dc + 3, out.dc + 3 * n);
   }
   return n;
 }
 
+std::size_t TermEngine::PushBlock(std::size_t n, const double* time,
+                                  const double* bx, const double* by,
+                                  const double* bz, const double* f,
+                                  const double* const* aux,
+                                  const Columns& out) {
+  if (n > kMaxBlock) {
+    throw std::invalid_argument("TermEngine::PushBlock: block longer than kMaxBlock");
+  }
+  constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
+  for (std::size_t i = 0; i < n; ++i) {
+    Append(time[i], bx[i], by[i], bz[i], f ? f[i] : kNaN, aux, i);
+  }
+  return EmitReady(out);
+}
+
+std::size_t TermEngine::FlushBlock(const Columns& out) {
+  segment_length_ = 0;
+  ready_ = pushed_;
+  return EmitReady(out);
+}
+
+namespace {
+
+// Columns of engine outputs as Output records (Push and Flush).
+int ToOutputs(const TermEngine::Columns& c, std::size_t n,
+              std::uint64_t first_index, std::size_t term_count,
+              TermEngine::Output* out) {
+  for (std::size_t i = 0; i < n; ++i) {
+    TermEngine::Output& o = out[i];
+    o.index = first_index + i;
+    o.segment = c.segment[i];
+    o.time = c.time[i];
+    o.bt = c.bt[i];
+    o.f = c.f[i];
+    for (int a = 0; a < 3; ++a) {
+      o.c[a] = c.c[3 * i + static_cast<std::size_t>(a)];
+      o.dc[a] = c.dc[3 * i + static_cast<std::size_t>(a)];
+    }
+    o.row = c.rows + i * term_count;
+    o.interference = c.interference[i];
+    o.flags = c.flags[i];
+  }
+  return static_cast<int>(n);
+}
+
+}  // namespace
+
+int TermEngine::Push(double time, const double b[3], double f,
+                     const double* aux, Output* out) {
+  const std::uint64_t first = emitted_;
+  // aux is one value per channel: channel a is the column aux + a, row 0.
+  for (std::size_t a = 0; a < aux_count_; ++a) aux_columns_[a] = aux + a;
+  Append(time, b[0], b[1], b[2], f, aux_columns_.data(), 0);
+  return ToOutputs(one_, EmitReady(one_), first, term_count_, out);
+}
+
 int TermEngine::Flush(Output* out) {
-  next_row_ = 0;
-  return FlushSegment(out, 0);
+  const std::uint64_t first = emitted_;
+  return ToOutputs(one_, FlushBlock(one_), first, term_count_, out);
 }
 
 TermMatrix BuildTermMatrix(const TermEngine::Options& options, std::size_t n,
@@ -340,29 +395,25 @@ TermMatrix BuildTermMatrix(const TermEngine::Options& options, std::size_t n,
   m.bt.assign(n, 0.0);
   m.interference.assign(n, 0.0);
   m.flags.assign(n, 0u);
-  std::vector<TermEngine::Output> out(
-      static_cast<std::size_t>(engine.max_outputs()));
-  std::vector<double> aux_row(aux.size());
-  auto store = [&m](const TermEngine::Output& o) {
-    const std::size_t r = static_cast<std::size_t>(o.index);
-    for (std::size_t c = 0; c < m.cols; ++c) {
-      m.values[r * m.cols + c] = o.row[c];
-    }
-    m.bt[r] = o.bt;
-    m.interference[r] = o.interference;
-    m.flags[r] = o.flags;
+  // Outputs leave in input order, one per sample: each block's outputs go
+  // straight to their rows.
+  auto columns_at = [&m](std::uint64_t index) {
+    const std::size_t r = static_cast<std::size_t>(index);
+    TermEngine::Columns c;
+    c.rows = m.values.data() + r * m.cols;
+    c.bt = m.bt.data() + r;
+    c.interference = m.interference.data() + r;
+    c.flags = m.flags.data() + r;
+    return c;
   };
-  const double nan = std::numeric_limits<double>::quiet_NaN();
-  for (std::size_t i = 0; i < n; ++i) {
-    const double b[3] = {bx[i], by[i], bz[i]};
-    for (std::size_t a = 0; a < aux.size(); ++a) aux_row[a] = aux[a][i];
-    const int ready = engine.Push(time[i], b, f ? f[i] : nan,
-                                  aux_row.empty() ? nullptr : aux_row.data(),
-                                  out.data());
-    for (int r = 0; r < ready; ++r) store(out[static_cast<std::size_t>(r)]);
+  std::vector<const double*> aux_block(aux.size());
+  for (std::size_t i = 0; i < n; i += TermEngine::kMaxBlock) {
+    const std::size_t len = std::min(TermEngine::kMaxBlock, n - i);
+    for (std::size_t a = 0; a < aux.size(); ++a) aux_block[a] = aux[a] + i;
+    engine.PushBlock(len, time + i, bx + i, by + i, bz + i, f ? f + i : nullptr,
+                     aux_block.data(), columns_at(engine.emitted()));
   }
-  const int ready = engine.Flush(out.data());
-  for (int r = 0; r < ready; ++r) store(out[static_cast<std::size_t>(r)]);
+  engine.FlushBlock(columns_at(engine.emitted()));
   return m;
 }
 

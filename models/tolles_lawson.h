@@ -76,9 +76,10 @@ enum SampleFlag : std::uint32_t {
 // the eddy terms of turbulence on survey lines are not under-estimated.
 double DerivativeWeight(int half_width, int offset, double dt_s);
 
-// Streaming term engine: push samples one at a time, get term rows back with
-// a fixed delay of k samples. The batch builder below runs the same engine,
-// so apply and stream agree sample for sample.
+// Term engine: push samples one at a time (Push) or a block of columns at a
+// time (PushBlock), get term rows back with a fixed delay of k samples. Both
+// run the same code per sample (a block of one is a Push), so apply, stream,
+// the runtime and the batch builder below agree to the bit.
 //
 // Segments: a gap ends a segment when the time step exceeds gap_factor
 // times the nominal 1/sample_rate_hz, when time does not increase, or when a
@@ -88,7 +89,8 @@ double DerivativeWeight(int half_width, int offset, double dt_s);
 // and the last before a gap carry kFlagGapEdge. A bad sample is emitted at
 // once with kFlagBadSample and NaN interference.
 //
-// No allocation after construction.
+// Outputs leave in input order, one per input sample. No allocation after
+// construction.
 class TermEngine {
  public:
   struct Options {
@@ -112,6 +114,25 @@ class TermEngine {
     std::uint32_t flags = 0;
   };
 
+  // Where PushBlock and FlushBlock write their outputs: entry i of each
+  // array is the i-th output of the call (sample index emitted() + i at the
+  // call). Arrays hold max_block_outputs() entries (rows: that many rows of
+  // term_count() values, row-major); a null array is not written.
+  struct Columns {
+    double* time = nullptr;
+    double* bt = nullptr;
+    double* f = nullptr;
+    double* interference = nullptr;
+    std::uint32_t* flags = nullptr;
+    std::uint64_t* segment = nullptr;
+    double* c = nullptr;     // 3 per output
+    double* dc = nullptr;    // 3 per output
+    double* rows = nullptr;  // term_count() per output
+  };
+
+  // Most samples one PushBlock takes.
+  static constexpr std::size_t kMaxBlock = 256;
+
   explicit TermEngine(const Options& options);
 
   std::size_t term_count() const { return term_count_; }
@@ -119,6 +140,14 @@ class TermEngine {
   const Options& options() const { return options_; }
   // Largest number of outputs one Push or Flush can return.
   int max_outputs() const { return options_.half_width + 2; }
+  // Largest number of outputs one PushBlock or FlushBlock can return.
+  std::size_t max_block_outputs() const {
+    return kMaxBlock + static_cast<std::size_t>(max_outputs());
+  }
+  // Samples pushed so far, and outputs returned so far (the index of the
+  // next output).
+  std::uint64_t pushed() const { return pushed_; }
+  std::uint64_t emitted() const { return emitted_; }
 
   // Coefficients in physical units, term_count() values. Until set, the
   // interference of every output is 0.
@@ -131,41 +160,55 @@ class TermEngine {
            Output* out);
   // End of input: emits every sample still pending.
   int Flush(Output* out);
+
+  // Pushes samples [0, n) of columns, n <= kMaxBlock: the same outputs as n
+  // calls of Push, bit for bit. f may be null (no scalar sensor: NaN); aux
+  // holds one column per aux channel. Returns the number of outputs written.
+  std::size_t PushBlock(std::size_t n, const double* time, const double* bx,
+                        const double* by, const double* bz, const double* f,
+                        const double* const* aux, const Columns& out);
+  // End of input, into columns.
+  std::size_t FlushBlock(const Columns& out);
   void Reset();
 
  private:
-  struct Pending {
-    std::uint64_t index;
-    std::uint64_t segment;
-    double time, bt, f;
-    double c[3];
-    std::uint32_t flags;
-    std::size_t aux_offset;  // into aux_store_
-    std::size_t position;    // position in its segment
-  };
-  int Emit(std::size_t ring_slot, bool derivative_valid, Output* out);
-  int FlushSegment(Output* out, int n);
-  // The ring holds a power-of-two number of slots >= 2k+1, so that a slot
-  // is a mask, not a division (a division per window sample was a third of
-  // the per-sample cost).
-  std::size_t Slot(std::size_t position) const { return position & ring_mask_; }
+  // Takes one sample into the ring: segments, flags, direction cosines.
+  void Append(double time, double b0, double b1, double b2, double f,
+              const double* const* aux, std::size_t aux_row);
+  // Computes outputs emitted_ .. ready_ - 1 into out, returns how many.
+  std::size_t EmitReady(const Columns& out);
+  std::size_t Slot(std::uint64_t index) const {
+    return static_cast<std::size_t>(index) & ring_mask_;
+  }
 
   Options options_;
   std::size_t term_count_ = 0;
   std::size_t aux_count_ = 0;
   double max_step_s_ = 0.0;      // gap_factor / sample_rate_hz
-  std::size_t ring_size_ = 0;
+  // Samples by index & ring_mask_: a power-of-two ring of at least
+  // kMaxBlock + 2k + 1 slots (a block, the k samples still waiting for
+  // their successors and the k before them that a derivative reads).
   std::size_t ring_mask_ = 0;
-  std::vector<Pending> ring_;
-  std::vector<double> aux_store_;
-  std::vector<double> rows_;           // max_outputs() rows
+  std::vector<double> time_, f_, bt_, cx_, cy_, cz_;
+  std::vector<double> aux_;             // aux_count_ per slot
+  std::vector<std::uint64_t> segment_;
+  std::vector<std::uint32_t> flags_;
+  std::vector<std::uint8_t> valid_;     // derivative valid
   std::vector<double> coefficients_;
-  std::vector<double> weights_;        // derivative weights, 2k+1
-  int next_row_ = 0;
-  std::uint64_t next_index_ = 0;
+  std::vector<double> weights_;         // derivative weights, 2k+1
+  std::vector<double> row_;             // one row, when out.rows is null
+  std::vector<const double*> aux_columns_;  // Push's aux values as columns
+  // Outputs of Push, as columns, then as Output.
+  std::vector<double> one_time_, one_bt_, one_f_, one_interference_, one_c_,
+      one_dc_, one_rows_;
+  std::vector<std::uint32_t> one_flags_;
+  std::vector<std::uint64_t> one_segment_;
+  Columns one_;
+  std::uint64_t pushed_ = 0;           // samples pushed
+  std::uint64_t emitted_ = 0;          // samples emitted
+  std::uint64_t ready_ = 0;            // samples that can be emitted
   std::uint64_t segments_ = 0;         // segments started so far
-  std::size_t segment_length_ = 0;     // samples in the current segment
-  std::size_t emitted_ = 0;            // of the current segment
+  std::size_t segment_length_ = 0;     // samples in the open segment
   double last_time_ = 0.0;
 };
 
