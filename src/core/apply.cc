@@ -30,13 +30,17 @@ std::string Join(const std::vector<std::string>& names) {
 }
 
 // Feeds rows of a table (any table with the recording's schema) to a
-// compensator: the one place that maps channels to Compensator::Push
-// arguments, for the chunked and the in-memory paths alike.
+// compensator, block by block: the one place that maps channels to
+// Compensator::PushBlock columns, for the chunked and the in-memory paths
+// alike.
 class RowPusher {
  public:
+  // block: samples per PushBlock (1 when an observer may change the
+  // coefficients between samples, as a stream pushing one at a time would).
   RowPusher(const proto::CompensationModel& model, const io::Table& schema,
-            models::Compensator* compensator)
-      : compensator_(compensator) {
+            models::Compensator* compensator, std::size_t block)
+      : compensator_(compensator),
+        block_(std::clamp<std::size_t>(block, 1, models::Compensator::kMaxBlock)) {
     i_time_ = schema.Find("time");
     i_bx_ = schema.Find("bx");
     i_by_ = schema.Find("by");
@@ -51,13 +55,30 @@ class RowPusher {
       i_aux_.push_back(schema.Find(model.terms().aux(a)));
     }
     aux_.resize(i_aux_.size());
+    const std::size_t m = compensator->max_block_outputs();
+    time_.resize(m);
+    f_comp_.resize(m);
+    f_int_.resize(m);
+    flags_.resize(m);
+    out_.time = time_.data();
+    out_.f_comp = f_comp_.data();
+    out_.f_interference = f_int_.data();
+    out_.flags = flags_.data();
   }
 
-  // Pushes rows [begin, end) of `table`; after each push, `sink(out, n)`
-  // receives the samples that came out.
+  // The columns of the last call's outputs (count given to the sink).
+  struct Outputs {
+    const double* time;
+    const double* f_comp;
+    const double* f_interference;
+    const std::uint32_t* flags;
+  };
+
+  // Pushes rows [begin, end) of `table`; after each block,
+  // `sink(outputs, n)` receives the n samples that came out.
   template <typename Sink>
   void Push(const io::Table& table, std::size_t begin, std::size_t end,
-            models::CompensatedSample* out, Sink&& sink) {
+            Sink&& sink) {
     auto col = [&table](int i) -> const double* {
       return i < 0 ? nullptr
                    : table.channel(static_cast<std::size_t>(i)).values.data();
@@ -65,26 +86,46 @@ class RowPusher {
     const double *t = col(i_time_), *bx = col(i_bx_), *by = col(i_by_),
                  *bz = col(i_bz_), *f = col(i_f_), *roll = col(i_roll_),
                  *pitch = col(i_pitch_), *temp = col(i_temp_);
-    std::vector<const double*> aux(i_aux_.size());
-    for (std::size_t a = 0; a < aux.size(); ++a) aux[a] = col(i_aux_[a]);
-    const double temp_default = compensator_->model().sensor.reference_temp_c;
-    for (std::size_t r = begin; r < end; ++r) {
-      const double b[3] = {bx[r], by[r], bz[r]};
-      for (std::size_t a = 0; a < aux.size(); ++a) aux_[a] = aux[a][r];
-      const int n = compensator_->Push(
-          t[r], b, f ? f[r] : kNaN, aux.empty() ? nullptr : aux_.data(),
-          roll ? roll[r] : kNaN, pitch ? pitch[r] : kNaN,
-          temp ? temp[r] : temp_default, out);
-      if (n > 0) sink(out, n);
+    auto at = [](const double* c, std::size_t r) {
+      return c ? c + r : nullptr;
+    };
+    for (std::size_t r = begin; r < end; r += block_) {
+      const std::size_t len = std::min(block_, end - r);
+      for (std::size_t a = 0; a < aux_.size(); ++a) {
+        aux_[a] = col(i_aux_[a]) + r;
+      }
+      models::SampleColumns in;
+      in.time = t + r;
+      in.bx = bx + r;
+      in.by = by + r;
+      in.bz = bz + r;
+      in.f = at(f, r);
+      in.roll_deg = at(roll, r);
+      in.pitch_deg = at(pitch, r);
+      in.temp_c = at(temp, r);
+      in.aux = aux_.data();
+      const std::size_t n = compensator_->PushBlock(len, in, out_);
+      if (n > 0) sink(Outputs{time_.data(), f_comp_.data(), f_int_.data(), flags_.data()}, n);
     }
+  }
+
+  // End of input: the samples still pending.
+  template <typename Sink>
+  void Flush(Sink&& sink) {
+    const std::size_t n = compensator_->FlushBlock(out_);
+    if (n > 0) sink(Outputs{time_.data(), f_comp_.data(), f_int_.data(), flags_.data()}, n);
   }
 
  private:
   models::Compensator* compensator_;
+  std::size_t block_;
   int i_time_ = -1, i_bx_ = -1, i_by_ = -1, i_bz_ = -1, i_f_ = -1,
       i_roll_ = -1, i_pitch_ = -1, i_temp_ = -1;
   std::vector<int> i_aux_;
-  std::vector<double> aux_;
+  std::vector<const double*> aux_;
+  std::vector<double> time_, f_comp_, f_int_;
+  std::vector<std::uint32_t> flags_;
+  models::CompensatedColumns out_;
 };
 
 }  // namespace
@@ -246,21 +287,31 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
   io::Table chunk(reader.channels());
   io::Table pending(reader.channels());  // inputs still waiting for output
   io::Table out(OutputSchema(reader.channels()));
-  std::vector<models::CompensatedSample> ready(
-      static_cast<std::size_t>(compensator.max_outputs()));
+  std::vector<models::CompensatedSample> observed(
+      options.observe ? compensator.max_block_outputs() : 0);
   std::vector<double> f_comp, f_int, flags;
 
   bool checked = false;
   std::unique_ptr<RowPusher> pusher;
 
-  auto collect = [&](int n) {
-    if (options.observe && n > 0) options.observe(compensator, ready.data(), n);
-    for (int r = 0; r < n; ++r) {
-      const models::CompensatedSample& s = ready[static_cast<std::size_t>(r)];
-      f_comp.push_back(s.f_comp);
-      f_int.push_back(s.f_interference);
-      flags.push_back(static_cast<double>(s.flags));
-      if (s.flags) ++result.flagged;
+  auto collect = [&](const RowPusher::Outputs& o, std::size_t n) {
+    if (options.observe) {
+      const std::uint64_t first = compensator.emitted() - n;
+      for (std::size_t r = 0; r < n; ++r) {
+        models::CompensatedSample& s = observed[r];
+        s.index = first + r;
+        s.time = o.time[r];
+        s.f_comp = o.f_comp[r];
+        s.f_interference = o.f_interference[r];
+        s.flags = o.flags[r];
+      }
+      options.observe(compensator, observed.data(), static_cast<int>(n));
+    }
+    for (std::size_t r = 0; r < n; ++r) {
+      f_comp.push_back(o.f_comp[r]);
+      f_int.push_back(o.f_interference[r]);
+      flags.push_back(static_cast<double>(o.flags[r]));
+      if (o.flags[r]) ++result.flagged;
     }
   };
   // Writes the pending rows whose outputs have arrived.
@@ -289,8 +340,7 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
   // Rows of `pending` already pushed into the compensator.
   std::size_t pushed = 0;
   auto push_pending = [&]() {
-    pusher->Push(pending, pushed, pending.rows(), ready.data(),
-                 [&](const models::CompensatedSample*, int n) { collect(n); });
+    pusher->Push(pending, pushed, pending.rows(), collect);
     pushed = pending.rows();
   };
   // The sample rate is checked on the first rate_check_rows samples (or the
@@ -311,7 +361,11 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
       if (more && pending.rows() < rate_rows) continue;
       if (pending.rows() == 0 || (fault && pending.rows() < 3)) break;
       CheckRecordingFitsModel(model, pending, file);
-      pusher = std::make_unique<RowPusher>(model, pending, &compensator);
+      // An observer may change the coefficients after any sample, as it
+      // would in a stream: then samples go in one at a time.
+      pusher = std::make_unique<RowPusher>(
+          model, pending, &compensator,
+          options.observe ? 1 : models::Compensator::kMaxBlock);
       checked = true;
     }
     push_pending();
@@ -323,7 +377,7 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
     if (fault) std::rethrow_exception(fault);
     throw io::InputError(file, 0, 0, "expected samples, found none");
   }
-  collect(compensator.Flush(ready.data()));
+  pusher->Flush(collect);
   write_done();
   writer.Close();
   if (fault) std::rethrow_exception(fault);
@@ -354,21 +408,16 @@ io::Table ApplyInMemory(const proto::CompensationModel& model,
   for (std::vector<double>* v : {&f_comp, &f_int, &flags}) v->reserve(n);
 
   models::Compensator compensator(ToCompensatorModel(model, file));
-  RowPusher pusher(model, out, &compensator);
-  std::vector<models::CompensatedSample> ready(
-      static_cast<std::size_t>(compensator.max_outputs()));
-  auto store = [&](const models::CompensatedSample* s, int count) {
-    for (int k = 0; k < count; ++k) {
-      if (s[k].index != f_comp.size()) {
-        throw std::logic_error("compensator output out of order");
-      }
-      f_comp.push_back(s[k].f_comp);
-      f_int.push_back(s[k].f_interference);
-      flags.push_back(static_cast<double>(s[k].flags));
+  RowPusher pusher(model, out, &compensator, models::Compensator::kMaxBlock);
+  auto store = [&](const RowPusher::Outputs& o, std::size_t count) {
+    f_comp.insert(f_comp.end(), o.f_comp, o.f_comp + count);
+    f_int.insert(f_int.end(), o.f_interference, o.f_interference + count);
+    for (std::size_t k = 0; k < count; ++k) {
+      flags.push_back(static_cast<double>(o.flags[k]));
     }
   };
-  pusher.Push(out, 0, n, ready.data(), store);
-  store(ready.data(), compensator.Flush(ready.data()));
+  pusher.Push(out, 0, n, store);
+  pusher.Flush(store);
   if (f_comp.size() != n) throw std::logic_error("compensator lost samples");
   return out;
 }
