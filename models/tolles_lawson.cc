@@ -190,6 +190,11 @@ TermEngine::TermEngine(const Options& options) : options_(options) {
   coefficients_.assign(term_count_, 0.0);
   row_.assign(term_count_, 0.0);
   aux_columns_.assign(aux_count_, nullptr);
+  for (int a = 0; a < 3; ++a) {
+    block_c_[a].assign(max_block_outputs(), 0.0);
+    block_dc_[a].assign(max_block_outputs(), 0.0);
+  }
+  block_bt_.assign(max_block_outputs(), 0.0);
   const double dt = 1.0 / options_.sample_rate_hz;
   for (int j = -options_.half_width; j <= options_.half_width; ++j) {
     weights_.push_back(DerivativeWeight(options_.half_width, j, dt));
@@ -276,9 +281,51 @@ inline void TermEngine::Append(double time, double b0, double b1, double b2,
   }
 }
 
+namespace {
+
+// Interference of the default 16-term row (tolles_lawson.h column order)
+// for samples [0, n) of columns: the products of FillTermRow and the sums
+// of PartialSumDot in the same order, so the result is the same to the bit;
+// written out without the row, a loop the compiler can run on several
+// samples at once.
+void DefaultInterference(std::size_t n, const double* cx, const double* cy,
+                         const double* cz, const double* dx, const double* dy,
+                         const double* dz, const double* bt,
+                         const double* k, double* out) {
+  for (std::size_t i = 0; i < n; ++i) {
+    const double x = cx[i], y = cy[i], z = cz[i];
+    const double bx = bt[i] * x, by = bt[i] * y, bz = bt[i] * z;
+    double h0 = 0.0, h1 = 0.0, h2 = 0.0, h3 = 0.0;
+    h0 += x * k[0];
+    h1 += y * k[1];
+    h2 += z * k[2];
+    h3 += bx * x * k[3];
+    h0 += bx * y * k[4];
+    h1 += bx * z * k[5];
+    h2 += by * y * k[6];
+    h3 += by * z * k[7];
+    h0 += bx * dx[i] * k[8];
+    h1 += bx * dy[i] * k[9];
+    h2 += bx * dz[i] * k[10];
+    h3 += by * dx[i] * k[11];
+    h0 += by * dy[i] * k[12];
+    h1 += by * dz[i] * k[13];
+    h2 += bz * dx[i] * k[14];
+    h3 += bz * dy[i] * k[15];
+    out[i] = (h0 + h1) + (h2 + h3);
+  }
+}
+
+}  // namespace
+
 std::size_t TermEngine::EmitReady(const Columns& out) {
   const std::size_t k = static_cast<std::size_t>(options_.half_width);
   const double* w = weights_.data() + k;
+  // The default term set without rows goes through DefaultInterference;
+  // anything else builds each row with FillTermRow.
+  const TermOptions& t = options_.terms;
+  const bool written_out = !out.rows && out.interference && t.permanent &&
+                           t.induced && t.eddy && !t.full && aux_count_ == 0;
   std::size_t n = 0;
   for (; emitted_ < ready_; ++emitted_, ++n) {
     const std::uint64_t s = emitted_;
@@ -300,11 +347,22 @@ std::size_t TermEngine::EmitReady(const Columns& out) {
       flags |= kFlagDerivativeInvalid;
     }
     const double bt = bt_[q];
-    double* row = out.rows ? out.rows + n * term_count_ : row_.data();
-    FillTermRow(options_.terms, c, dc, bt,
-                aux_count_ ? &aux_[q * aux_count_] : nullptr, row);
-    if (out.interference) {
-      out.interference[n] = PartialSumDot(row, coefficients_.data(), term_count_);
+    if (written_out) {
+      block_c_[0][n] = c[0];
+      block_c_[1][n] = c[1];
+      block_c_[2][n] = c[2];
+      block_dc_[0][n] = dc[0];
+      block_dc_[1][n] = dc[1];
+      block_dc_[2][n] = dc[2];
+      block_bt_[n] = bt;
+    } else {
+      double* row = out.rows ? out.rows + n * term_count_ : row_.data();
+      FillTermRow(t, c, dc, bt, aux_count_ ? &aux_[q * aux_count_] : nullptr,
+                  row);
+      if (out.interference) {
+        out.interference[n] =
+            PartialSumDot(row, coefficients_.data(), term_count_);
+      }
     }
     if (out.time) out.time[n] = time_[q];
     if (out.bt) out.bt[n] = bt;
@@ -313,6 +371,13 @@ std::size_t TermEngine::EmitReady(const Columns& out) {
     if (out.segment) out.segment[n] = segment_[q];
     if (out.c) std::copy(c, c + 3, out.c + 3 * n);
     if (out.dc) std::copy(dc, dc + 3, out.dc + 3 * n);
+  }
+  if (written_out) {
+    DefaultInterference(n, block_c_[0].data(), block_c_[1].data(),
+                        block_c_[2].data(), block_dc_[0].data(),
+                        block_dc_[1].data(), block_dc_[2].data(),
+                        block_bt_.data(), coefficients_.data(),
+                        out.interference);
   }
   return n;
 }

@@ -198,6 +198,8 @@ class TermEngine {
   std::vector<double> weights_;         // derivative weights, 2k+1
   std::vector<double> row_;             // one row, when out.rows is null
   std::vector<const double*> aux_columns_;  // Push's aux values as columns
+  // c, c' and Bt of the samples one EmitReady writes out (default terms).
+  std::vector<double> block_c_[3], block_dc_[3], block_bt_;
   // Outputs of Push, as columns, then as Output.
   std::vector<double> one_time_, one_bt_, one_f_, one_interference_, one_c_,
       one_dc_, one_rows_;
