@@ -224,6 +224,18 @@ std::size_t Compensator::Drain(bool flushing, const CompensatedColumns& out) {
 
 double Compensator::LaggedF(std::uint64_t r, bool* clamped) const {
   const Record& rec = At(r);
+  const std::int64_t q0 = static_cast<std::int64_t>(r) + lag_floor_ - 1;
+  // Most samples: the four readings and the sample itself lie in one
+  // segment (segment numbers grow with the index, so the two ends decide).
+  const std::int64_t first = std::min(q0, static_cast<std::int64_t>(r));
+  const std::int64_t last = std::max(q0 + 3, static_cast<std::int64_t>(r));
+  if (first >= 0 && last < static_cast<std::int64_t>(received_) &&
+      At(static_cast<std::uint64_t>(first)).segment == rec.segment &&
+      At(static_cast<std::uint64_t>(last)).segment == rec.segment) {
+    const std::uint64_t q = static_cast<std::uint64_t>(q0);
+    return CatmullRom(At(q).f, At(q + 1).f, At(q + 2).f, At(q + 3).f,
+                      lag_frac_);
+  }
   // Bounds of this sample's segment within reach.
   const std::int64_t lo_reach = static_cast<std::int64_t>(r) + lag_floor_ - 1;
   const std::int64_t hi_reach = static_cast<std::int64_t>(r) + lag_floor_ + 2;
