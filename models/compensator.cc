@@ -157,10 +157,24 @@ std::size_t Compensator::FlushBlock(const CompensatedColumns& out) {
   return Take(engine_.FlushBlock(engine_cols_), true, out);
 }
 
+inline Compensator::Record Compensator::EngineRecord(
+    std::size_t i, std::uint64_t index) const {
+  Record r;
+  r.segment = eng_segment_[i];
+  r.time = eng_time_[i];
+  r.bt = eng_bt_[i];
+  r.f = model_.scalar_sensor ? eng_f_[i] : eng_bt_[i];
+  r.h = eng_interference_[i] - model_.interference_mean_nT;
+  r.flags = eng_flags_[i];
+  if (attitude_outside_[static_cast<std::size_t>(index & ring_mask_)]) {
+    r.flags |= kFlagAttitudeOutside;
+  }
+  return r;
+}
+
 std::size_t Compensator::Take(std::size_t ready, bool flushing,
                               const CompensatedColumns& out) {
   const std::uint64_t first = received_;
-  const double mean = model_.interference_mean_nT;
   if (keep_rows_) {
     for (std::size_t i = 0; i < ready; ++i) {
       const double* row = eng_rows_.data() + i * term_count();
@@ -174,32 +188,15 @@ std::size_t Compensator::Take(std::size_t ready, bool flushing,
     // Without a lag an output needs no later sample: straight from the
     // engine's outputs, without the round trip through the ring.
     for (std::size_t i = 0; i < ready; ++i) {
-      Record r;
-      r.segment = eng_segment_[i];
-      r.time = eng_time_[i];
-      r.bt = eng_bt_[i];
-      r.f = model_.scalar_sensor ? eng_f_[i] : eng_bt_[i];
-      r.h = eng_interference_[i] - mean;
-      std::uint32_t flags = eng_flags_[i];
-      if (attitude_outside_[static_cast<std::size_t>((first + i) & ring_mask_)]) {
-        flags |= kFlagAttitudeOutside;
-      }
-      WriteSample(r, r.f, flags, out, i);
+      const Record r = EngineRecord(i, first + i);
+      WriteSample(r, r.f, r.flags, out, i);
     }
     emitted_ = received_;
     return ready;
   }
   for (std::size_t i = 0; i < ready; ++i) {
-    Record& r = ring_[static_cast<std::size_t>((first + i) & ring_mask_)];
-    r.segment = eng_segment_[i];
-    r.time = eng_time_[i];
-    r.bt = eng_bt_[i];
-    r.f = model_.scalar_sensor ? eng_f_[i] : eng_bt_[i];
-    r.h = eng_interference_[i] - mean;
-    r.flags = eng_flags_[i];
-    if (attitude_outside_[static_cast<std::size_t>((first + i) & ring_mask_)]) {
-      r.flags |= kFlagAttitudeOutside;
-    }
+    ring_[static_cast<std::size_t>((first + i) & ring_mask_)] =
+        EngineRecord(i, first + i);
   }
   return Drain(flushing, out);
 }

@@ -149,6 +149,9 @@ class Compensator {
   // returns how many.
   std::size_t Take(std::size_t ready, bool flushing,
                    const CompensatedColumns& out);
+  // Engine output i of the block (sample `index`) as the compensator keeps
+  // it: f, h without the mean level, the attitude flag.
+  Record EngineRecord(std::size_t i, std::uint64_t index) const;
   int ToSamples(std::size_t n, std::uint64_t first, CompensatedSample* out) const;
   // The sample of a record, with f the scalar reading at the sample's time
   // (lag applied): f_comp = f - h (NaN for a bad sample).

@@ -105,7 +105,7 @@ class RowPusher {
       in.temp_c = at(temp, r);
       in.aux = aux_.data();
       const std::size_t n = compensator_->PushBlock(len, in, out_);
-      if (n > 0) sink(Outputs{time_.data(), f_comp_.data(), f_int_.data(), flags_.data()}, n);
+      if (n > 0) sink(outputs(), n);
     }
   }
 
@@ -113,10 +113,14 @@ class RowPusher {
   template <typename Sink>
   void Flush(Sink&& sink) {
     const std::size_t n = compensator_->FlushBlock(out_);
-    if (n > 0) sink(Outputs{time_.data(), f_comp_.data(), f_int_.data(), flags_.data()}, n);
+    if (n > 0) sink(outputs(), n);
   }
 
  private:
+  Outputs outputs() const {
+    return {time_.data(), f_comp_.data(), f_int_.data(), flags_.data()};
+  }
+
   models::Compensator* compensator_;
   std::size_t block_;
   int i_time_ = -1, i_bx_ = -1, i_by_ = -1, i_bz_ = -1, i_f_ = -1,
