@@ -21,6 +21,19 @@ double CatmullRom(double p0, double p1, double p2, double p3, double t) {
 
 }  // namespace
 
+void ToSamples(const CompensatedColumns& c, std::size_t n,
+               std::uint64_t first_index, CompensatedSample* out) {
+  for (std::size_t i = 0; i < n; ++i) {
+    CompensatedSample& s = out[i];
+    s.index = first_index + i;
+    s.time = c.time ? c.time[i] : kNaN;
+    s.f_comp = c.f_comp[i];
+    s.f_interference = c.f_interference[i];
+    s.bt = c.bt ? c.bt[i] : kNaN;
+    s.flags = c.flags[i];
+  }
+}
+
 Compensator::Compensator(const CompensatorModel& model)
     : model_(model), sensor_(model.sensor), engine_(model.engine) {
   if (model_.coefficients.size() != engine_.term_count()) {
@@ -258,20 +271,6 @@ double Compensator::LaggedF(std::uint64_t r, bool* clamped) const {
   return CatmullRom(p[0], p[1], p[2], p[3], lag_frac_);
 }
 
-int Compensator::ToSamples(std::size_t n, std::uint64_t first,
-                           CompensatedSample* out) const {
-  for (std::size_t i = 0; i < n; ++i) {
-    CompensatedSample& s = out[i];
-    s.index = first + i;
-    s.time = one_.time[i];
-    s.f_comp = one_.f_comp[i];
-    s.f_interference = one_.f_interference[i];
-    s.bt = one_.bt[i];
-    s.flags = one_.flags[i];
-  }
-  return static_cast<int>(n);
-}
-
 int Compensator::Push(double time, const double b[3], double f,
                       const double* aux, double roll_deg, double pitch_deg,
                       double temp_c, CompensatedSample* out) {
@@ -290,12 +289,16 @@ int Compensator::Push(double time, const double b[3], double f,
   in.temp_c = &temp_c;
   in.aux = aux_columns_.data();
   const std::uint64_t first = emitted_;
-  return ToSamples(PushBlock(1, in, one_), first, out);
+  const std::size_t n = PushBlock(1, in, one_);
+  ToSamples(one_, n, first, out);
+  return static_cast<int>(n);
 }
 
 int Compensator::Flush(CompensatedSample* out) {
   const std::uint64_t first = emitted_;
-  return ToSamples(FlushBlock(one_), first, out);
+  const std::size_t n = FlushBlock(one_);
+  ToSamples(one_, n, first, out);
+  return static_cast<int>(n);
 }
 
 }  // namespace fluxtrim::models

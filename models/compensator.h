@@ -79,6 +79,11 @@ struct CompensatedColumns {
   std::uint32_t* flags = nullptr;
 };
 
+// Outputs [0, n) of columns as samples, the first with index first_index
+// (a null time or bt column gives NaN).
+void ToSamples(const CompensatedColumns& columns, std::size_t n,
+               std::uint64_t first_index, CompensatedSample* out);
+
 class Compensator {
  public:
   // Throws std::invalid_argument when the model is inconsistent (coefficient
@@ -152,7 +157,6 @@ class Compensator {
   // Engine output i of the block (sample `index`) as the compensator keeps
   // it: f, h without the mean level, the attitude flag.
   Record EngineRecord(std::size_t i, std::uint64_t index) const;
-  int ToSamples(std::size_t n, std::uint64_t first, CompensatedSample* out) const;
   // The sample of a record, with f the scalar reading at the sample's time
   // (lag applied): f_comp = f - h (NaN for a bad sample).
   static void WriteSample(const Record& rec, double f, std::uint32_t flags,

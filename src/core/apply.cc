@@ -66,16 +66,9 @@ class RowPusher {
     out_.flags = flags_.data();
   }
 
-  // The columns of the last call's outputs (count given to the sink).
-  struct Outputs {
-    const double* time;
-    const double* f_comp;
-    const double* f_interference;
-    const std::uint32_t* flags;
-  };
-
   // Pushes rows [begin, end) of `table`; after each block,
-  // `sink(outputs, n)` receives the n samples that came out.
+  // `sink(columns, n)` receives the n samples that came out (time, f_comp,
+  // f_interference, flags).
   template <typename Sink>
   void Push(const io::Table& table, std::size_t begin, std::size_t end,
             Sink&& sink) {
@@ -105,7 +98,7 @@ class RowPusher {
       in.temp_c = at(temp, r);
       in.aux = aux_.data();
       const std::size_t n = compensator_->PushBlock(len, in, out_);
-      if (n > 0) sink(outputs(), n);
+      if (n > 0) sink(out_, n);
     }
   }
 
@@ -113,13 +106,10 @@ class RowPusher {
   template <typename Sink>
   void Flush(Sink&& sink) {
     const std::size_t n = compensator_->FlushBlock(out_);
-    if (n > 0) sink(outputs(), n);
+    if (n > 0) sink(out_, n);
   }
 
  private:
-  Outputs outputs() const {
-    return {time_.data(), f_comp_.data(), f_int_.data(), flags_.data()};
-  }
 
   models::Compensator* compensator_;
   std::size_t block_;
@@ -298,17 +288,9 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
   bool checked = false;
   std::unique_ptr<RowPusher> pusher;
 
-  auto collect = [&](const RowPusher::Outputs& o, std::size_t n) {
+  auto collect = [&](const models::CompensatedColumns& o, std::size_t n) {
     if (options.observe) {
-      const std::uint64_t first = compensator.emitted() - n;
-      for (std::size_t r = 0; r < n; ++r) {
-        models::CompensatedSample& s = observed[r];
-        s.index = first + r;
-        s.time = o.time[r];
-        s.f_comp = o.f_comp[r];
-        s.f_interference = o.f_interference[r];
-        s.flags = o.flags[r];
-      }
+      models::ToSamples(o, n, compensator.emitted() - n, observed.data());
       options.observe(compensator, observed.data(), static_cast<int>(n));
     }
     for (std::size_t r = 0; r < n; ++r) {
@@ -413,7 +395,7 @@ io::Table ApplyInMemory(const proto::CompensationModel& model,
 
   models::Compensator compensator(ToCompensatorModel(model, file));
   RowPusher pusher(model, out, &compensator, models::Compensator::kMaxBlock);
-  auto store = [&](const RowPusher::Outputs& o, std::size_t count) {
+  auto store = [&](const models::CompensatedColumns& o, std::size_t count) {
     f_comp.insert(f_comp.end(), o.f_comp, o.f_comp + count);
     f_int.insert(f_int.end(), o.f_interference, o.f_interference + count);
     for (std::size_t k = 0; k < count; ++k) {

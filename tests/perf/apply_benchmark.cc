@@ -67,6 +67,15 @@ const Inputs& ReplayInputs(std::size_t aux_count) {
 }
 
 // Args: aux channels, lag in ms, sensor calibration (0/1).
+void CompensatorArgs(benchmark::internal::Benchmark* b) {
+  b->ArgNames({"aux", "lag_ms", "sensor"})
+      ->Args({0, 0, 0})
+      ->Args({2, 0, 0})
+      ->Args({0, 30, 0})
+      ->Args({0, 30, 1})
+      ->Args({2, 30, 1});
+}
+
 void BM_CompensatorPush(benchmark::State& state) {
   const std::size_t aux_count = static_cast<std::size_t>(state.range(0));
   const double lag_s = 1e-3 * static_cast<double>(state.range(1));
@@ -92,13 +101,7 @@ void BM_CompensatorPush(benchmark::State& state) {
   state.SetItemsProcessed(state.iterations());
   state.counters["terms"] = static_cast<double>(comp.term_count());
 }
-BENCHMARK(BM_CompensatorPush)
-    ->ArgNames({"aux", "lag_ms", "sensor"})
-    ->Args({0, 0, 0})
-    ->Args({2, 0, 0})
-    ->Args({0, 30, 0})
-    ->Args({0, 30, 1})
-    ->Args({2, 30, 1});
+BENCHMARK(BM_CompensatorPush)->Apply(CompensatorArgs);
 
 // The term builder alone (direction cosines, derivative, row, dot product).
 void BM_TermEnginePush(benchmark::State& state) {
@@ -181,13 +184,7 @@ void BM_CompensatorPushBlock(benchmark::State& state) {
   state.SetItemsProcessed(state.iterations() * static_cast<std::int64_t>(kBlock));
   state.counters["terms"] = static_cast<double>(comp.term_count());
 }
-BENCHMARK(BM_CompensatorPushBlock)
-    ->ArgNames({"aux", "lag_ms", "sensor"})
-    ->Args({0, 0, 0})
-    ->Args({2, 0, 0})
-    ->Args({0, 30, 0})
-    ->Args({0, 30, 1})
-    ->Args({2, 30, 1});
+BENCHMARK(BM_CompensatorPushBlock)->Apply(CompensatorArgs);
 
 // ApplyInMemory on a 200 000-sample table (5.5 h at 10 Hz): the engine plus
 // the output table (three columns added). Args: aux channels, lag in ms (a
