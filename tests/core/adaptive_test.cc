@@ -6,7 +6,6 @@
 
 #include <cmath>
 #include <cstdio>
-#include <memory>
 #include <random>
 #include <sstream>
 #include <stdexcept>
@@ -467,16 +466,10 @@ TEST(AdaptiveTest, CausalBandPassMatchesScipySosfilt) {
     std::fputs(script.c_str(), f);
     std::fclose(f);
   }
-  std::unique_ptr<FILE, int (*)(FILE*)> pipe(
-      popen((std::string(FLUXTRIM_PYTHON) + " " + path).c_str(), "r"), pclose);
-  ASSERT_TRUE(pipe);
-  std::string text;
-  char buffer[4096];
-  std::size_t got;
-  while ((got = fread(buffer, 1, sizeof buffer, pipe.get())) > 0) {
-    text.append(buffer, got);
-  }
-  std::istringstream in(text);
+  const test_support::CommandResult run =
+      test_support::RunCommand(std::string(FLUXTRIM_PYTHON) + " " + path);
+  ASSERT_NE(run.code, -1);
+  std::istringstream in(run.output);
   std::vector<double> expected;
   double v;
   while (in >> v) expected.push_back(v);

@@ -13,7 +13,6 @@
 #include <cmath>
 #include <cstdio>
 #include <map>
-#include <memory>
 #include <sstream>
 #include <stdexcept>
 #include <string>
@@ -92,15 +91,9 @@ void Fetch(std::vector<std::string> specs) {
     any = true;
   }
   if (!any) return;
-  std::unique_ptr<FILE, int (*)(FILE*)> pipe(popen(cmd.c_str(), "r"), pclose);
-  if (!pipe) throw std::runtime_error("cannot run " + cmd);
-  std::string text;
-  char buffer[1 << 16];
-  std::size_t got;
-  while ((got = fread(buffer, 1, sizeof buffer, pipe.get())) > 0) {
-    text.append(buffer, got);
-  }
-  std::istringstream lines(text);
+  const test_support::CommandResult run = test_support::RunCommand(cmd);
+  if (run.code == -1) throw std::runtime_error("cannot run " + cmd);
+  std::istringstream lines(run.output);
   std::string line;
   while (std::getline(lines, line)) {
     std::istringstream fields(line);

@@ -26,6 +26,7 @@
 
 #include "models/fluxgate_sensor.h"
 #include "models/wmm.h"
+#include "tests/support/subprocess.h"
 
 namespace fluxtrim::core {
 namespace {
@@ -586,15 +587,13 @@ TEST(Calibrate, MagnitudeFitAgreesWithAnIndependentScipyFit) {
   const std::string cmd = std::string(FLUXTRIM_PYTHON) + " " +
                           FLUXTRIM_SOURCE_DIR +
                           "/tests/reference/scipy_calibration.py " + csv;
-  FILE* pipe = popen(cmd.c_str(), "r");
-  ASSERT_NE(pipe, nullptr);
+  const test_support::CommandResult run = test_support::RunCommand(cmd);
+  ASSERT_EQ(run.code, 0) << cmd;
   std::map<std::string, std::pair<double, double>> scipy;
-  char name[32];
+  std::istringstream in(run.output);
+  std::string name;
   double value = 0, se = 0;
-  while (std::fscanf(pipe, "%31s %lf %lf", name, &value, &se) == 3) {
-    scipy[name] = {value, se};
-  }
-  ASSERT_EQ(pclose(pipe), 0) << cmd;
+  while (in >> name >> value >> se) scipy[name] = {value, se};
   ASSERT_EQ(scipy.size(), 10u) << "scipy_calibration.py printed too little";
 
   const CalibrateResult r = Calibrate(s.table, {});

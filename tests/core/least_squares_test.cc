@@ -16,6 +16,7 @@
 #include <unistd.h>
 
 #include "src/core/ridge.h"
+#include "tests/support/subprocess.h"
 
 namespace fluxtrim::core {
 namespace {
@@ -57,17 +58,11 @@ Reference RunNumpy(const Eigen::MatrixXd& a, const Eigen::VectorXd& y,
   const std::string cmd = std::string(FLUXTRIM_PYTHON) + " " +
                           FLUXTRIM_SOURCE_DIR +
                           "/tests/reference/numpy_lstsq.py " + path;
-  FILE* pipe = popen(cmd.c_str(), "r");
-  EXPECT_NE(pipe, nullptr);
-  std::string text;
-  char buffer[4096];
-  while (pipe && fgets(buffer, sizeof buffer, pipe)) text += buffer;
-  if (pipe) {
-    EXPECT_EQ(pclose(pipe), 0);
-  }
+  const test_support::CommandResult run = test_support::RunCommand(cmd);
+  EXPECT_EQ(run.code, 0) << cmd;
   std::remove(path);
   Reference ref;
-  std::istringstream lines(text);
+  std::istringstream lines(run.output);
   std::string line;
   auto parse = [](const std::string& l) {
     std::istringstream in(l);

@@ -6,13 +6,13 @@
 #include <gtest/gtest.h>
 
 #include <cmath>
-#include <cstdio>
 #include <cstdlib>
-#include <memory>
 #include <sstream>
 #include <stdexcept>
 #include <string>
 #include <vector>
+
+#include "tests/support/subprocess.h"
 
 namespace fluxtrim::core {
 namespace {
@@ -126,10 +126,11 @@ TEST(Metrics, AgreeWithNumPyOnASyntheticField) {
       "x = 52000 + 30 * n.sin(0.01 * i) + 0.5 * n.cos(1.3 * i); "
       "print(repr(float(n.ptp(x))), repr(float(n.std(x))), "
       "repr(float(n.sqrt(n.mean((x - 52000) ** 2)))))'";
-  std::unique_ptr<FILE, int (*)(FILE*)> pipe(popen(cmd.c_str(), "r"), pclose);
-  ASSERT_TRUE(pipe);
-  char line[256] = {0};
-  ASSERT_NE(fgets(line, sizeof line, pipe.get()), nullptr);
+  const test_support::CommandResult run = test_support::RunCommand(cmd);
+  ASSERT_NE(run.code, -1) << cmd;
+  std::string line;
+  std::istringstream lines(run.output);
+  ASSERT_TRUE(std::getline(lines, line)) << cmd;
   std::istringstream in(line);
   double ptp = 0, sd = 0, rms = 0;
   in >> ptp >> sd >> rms;

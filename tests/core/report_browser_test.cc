@@ -10,10 +10,8 @@
 // keeps the fit report's screenshot.
 
 #include <gtest/gtest.h>
-#include <sys/wait.h>
 #include <unistd.h>
 
-#include <cstdio>
 #include <cstdlib>
 #include <filesystem>
 #include <fstream>
@@ -22,6 +20,7 @@
 
 #include "src/core/report.h"
 #include "tests/core/report_demo.h"
+#include "tests/support/subprocess.h"
 
 namespace fluxtrim::core {
 namespace {
@@ -64,15 +63,9 @@ class ReportBrowserTest : public ::testing::Test {
         std::string(FLUXTRIM_PYTHON) + " " + FLUXTRIM_SOURCE_DIR +
         "/tests/core/browser_check.py --chromium '" + chromium_ + "' --html '" +
         html.string() + "' --ids '" + Join(ids) + "' " + extra + " 2>&1";
-    FILE* pipe = ::popen(cmd.c_str(), "r");
-    if (pipe == nullptr) return -1;
-    char buffer[4096];
-    std::size_t n;
-    while ((n = std::fread(buffer, 1, sizeof buffer, pipe)) > 0) {
-      output->append(buffer, n);
-    }
-    const int status = ::pclose(pipe);
-    return WIFEXITED(status) ? WEXITSTATUS(status) : -1;
+    const test_support::CommandResult run = test_support::RunCommand(cmd);
+    output->append(run.output);
+    return run.code;
   }
 
   // Every plot must show its data colours, not only axes.

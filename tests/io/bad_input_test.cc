@@ -4,11 +4,9 @@
 // first hand over the good rows before the bad one. The last test checks the
 // command line maps the error to exit code 1.
 
-#include <sys/wait.h>
 #include <unistd.h>
 
 #include <cmath>
-#include <cstdio>
 #include <fstream>
 #include <limits>
 #include <memory>
@@ -23,6 +21,7 @@
 #include "io/frames.h"
 #include "io/recording.h"
 #include "proto/recording.pb.h"
+#include "tests/support/subprocess.h"
 
 namespace fluxtrim::io {
 namespace {
@@ -486,17 +485,11 @@ TEST(CommandLineBadInput, ExitsWithCodeOneAndNamesThePlace) {
   }
   const std::string command =
       std::string(FLUXTRIM_EXE) + " inspect " + path + " 2>&1";
-  FILE* pipe = ::popen(command.c_str(), "r");
-  ASSERT_NE(pipe, nullptr);
-  std::string out;
-  char buf[4096];
-  std::size_t n;
-  while ((n = std::fread(buf, 1, sizeof buf, pipe)) > 0) out.append(buf, n);
-  const int status = ::pclose(pipe);
-  ASSERT_TRUE(WIFEXITED(status));
-  EXPECT_EQ(WEXITSTATUS(status), 1) << out;
-  EXPECT_TRUE(Contains(out, path + ":3:7"));
-  EXPECT_TRUE(Contains(out, "expected a number, found 'oops'"));
+  const test_support::CommandResult run = test_support::RunCommand(command);
+  ASSERT_NE(run.code, -1) << run.output;
+  EXPECT_EQ(run.code, 1) << run.output;
+  EXPECT_TRUE(Contains(run.output, path + ":3:7"));
+  EXPECT_TRUE(Contains(run.output, "expected a number, found 'oops'"));
 }
 
 }  // namespace

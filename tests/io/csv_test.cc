@@ -10,7 +10,6 @@
 #include <charconv>
 #include <cmath>
 #include <cstdint>
-#include <cstdio>
 #include <cstring>
 #include <fstream>
 #include <limits>
@@ -23,6 +22,7 @@
 
 #include "io/error.h"
 #include "io/recording.h"
+#include "tests/support/subprocess.h"
 
 namespace fluxtrim::io {
 namespace {
@@ -81,15 +81,9 @@ std::string RunPython(const std::string& script, const std::string& arg) {
   WriteFile(script_path, script);
   const std::string command = std::string(FLUXTRIM_PYTHON) + " " +
                               script_path + " " + arg;
-  FILE* pipe = ::popen(command.c_str(), "r");
-  if (pipe == nullptr) return "";
-  std::string out;
-  char buf[4096];
-  std::size_t n;
-  while ((n = std::fread(buf, 1, sizeof buf, pipe)) > 0) out.append(buf, n);
-  const int status = ::pclose(pipe);
-  EXPECT_EQ(status, 0) << "python failed: " << command;
-  return out;
+  const test_support::CommandResult run = test_support::RunCommand(command);
+  EXPECT_EQ(run.code, 0) << "python failed: " << command;
+  return run.output;
 }
 
 TEST(CsvReader, MatchesHeaderNamesCaseInsensitivelyAndKeepsTheirSpelling) {

@@ -8,12 +8,13 @@
 
 #include <cmath>
 #include <cstdint>
-#include <cstdio>
 #include <cstdlib>
 #include <cstring>
 #include <sstream>
 #include <string>
 #include <vector>
+
+#include "tests/support/subprocess.h"
 
 namespace fluxtrim::io {
 namespace {
@@ -85,14 +86,9 @@ TEST(FortranNumber, ReadsFortranSpellingsLikeAnIndependentParser) {
       std::string(FLUXTRIM_PYTHON) +
       " -c \"import sys; [print(float(a.strip().replace('D','E')"
       ".replace('d','e')).hex()) for a in sys.argv[1:]]\"" + args;
-  FILE* p = popen(command.c_str(), "r");
-  ASSERT_NE(p, nullptr);
-  std::string out;
-  char buf[4096];
-  std::size_t n;
-  while ((n = fread(buf, 1, sizeof(buf), p)) > 0) out.append(buf, n);
-  ASSERT_EQ(pclose(p), 0) << command;
-  std::istringstream lines(out);
+  const test_support::CommandResult run = test_support::RunCommand(command);
+  ASSERT_EQ(run.code, 0) << command;
+  std::istringstream lines(run.output);
   std::string hex;
   for (const std::string& t : texts) {
     ASSERT_TRUE(std::getline(lines, hex)) << t;

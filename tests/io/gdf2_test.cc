@@ -23,6 +23,7 @@
 #include <vector>
 
 #include "io/error.h"
+#include "tests/support/subprocess.h"
 
 namespace fluxtrim::io {
 namespace {
@@ -81,17 +82,6 @@ std::string Slurp(const std::string& path) {
 void WriteText(const std::string& path, const std::string& text) {
   std::ofstream out(path, std::ios::binary);
   out << text;
-}
-
-std::string RunCommand(const std::string& command) {
-  std::string out;
-  FILE* p = popen(command.c_str(), "r");
-  if (p == nullptr) return out;
-  char buf[4096];
-  std::size_t n;
-  while ((n = fread(buf, 1, sizeof(buf), p)) > 0) out.append(buf, n);
-  pclose(p);
-  return out;
 }
 
 TEST(Gdf2Reader, ReadsTheConventionalLayoutWithRecordTypesAndComments) {
@@ -416,10 +406,10 @@ TEST(Gdf2Writer, WritesTextThatAnIndependentParserReadsToTheSameBits) {
       "    if line.startswith('DATA'):\n"
       "        print(float(line[4+25:4+50]).hex())\n";
   WriteText(dir.File("parse.py"), script);
-  const std::string out = RunCommand(std::string(FLUXTRIM_PYTHON) + " " +
-                                     dir.File("parse.py") + " " +
-                                     dir.File("py.dat"));
-  std::istringstream lines(out);
+  const test_support::CommandResult run = test_support::RunCommand(
+      std::string(FLUXTRIM_PYTHON) + " " + dir.File("parse.py") + " " +
+      dir.File("py.dat"));
+  std::istringstream lines(run.output);
   std::string hex;
   std::size_t i = 0;
   while (std::getline(lines, hex)) {
@@ -429,7 +419,7 @@ TEST(Gdf2Writer, WritesTextThatAnIndependentParserReadsToTheSameBits) {
     EXPECT_EQ(Bits(py), Bits(kept[i])) << hex << " vs " << kept[i];
     ++i;
   }
-  EXPECT_EQ(i, kept.size()) << "python output: " << out.substr(0, 200);
+  EXPECT_EQ(i, kept.size()) << "python output: " << run.output.substr(0, 200);
 }
 
 TEST(Gdf2Writer, WritesTheConventionalDefinitionWithUnitsNamesAndNulls) {

@@ -2,7 +2,6 @@
 // Savitzky-Golay coefficients (scipy.signal.savgol_coeffs, Debian
 // python3-scipy, run live).
 #include <cmath>
-#include <cstdio>
 #include <sstream>
 #include <string>
 #include <vector>
@@ -10,6 +9,7 @@
 #include <gtest/gtest.h>
 
 #include "models/tolles_lawson.h"
+#include "tests/support/subprocess.h"
 
 namespace fluxtrim::models {
 namespace {
@@ -26,12 +26,10 @@ std::vector<double> SciPyWeights() {
       << "    print(' '.join(repr(float(v)) for v in s.savgol_coeffs("
       << "2 * k + 1, 3 if k >= 2 else 2, deriv=1, delta=dt, use='dot')))\" "
       << "2>/dev/null";
-  FILE* pipe = popen(cmd.str().c_str(), "r");
+  std::istringstream in(test_support::RunCommand(cmd.str()).output);
   std::vector<double> w;
-  if (!pipe) return w;
   double v;
-  while (std::fscanf(pipe, "%lf", &v) == 1) w.push_back(v);
-  pclose(pipe);
+  while (in >> v) w.push_back(v);
   return w;
 }
 

@@ -7,8 +7,11 @@
 
 #include <cmath>
 #include <cstdio>
+#include <sstream>
 #include <string>
 #include <vector>
+
+#include "tests/support/subprocess.h"
 
 namespace fluxtrim::models {
 namespace {
@@ -49,14 +52,9 @@ std::vector<Reference> SciPyReference(int max_degree,
     command += arg;
   }
   std::vector<Reference> out;
-  FILE* pipe = popen(command.c_str(), "r");
-  if (pipe == nullptr) return out;
+  std::istringstream in(test_support::RunCommand(command).output);
   Reference r{};
-  while (std::fscanf(pipe, "%d %d %d %lf %lf", &r.k, &r.n, &r.m, &r.p,
-                     &r.dp_dtheta) == 5) {
-    out.push_back(r);
-  }
-  pclose(pipe);
+  while (in >> r.k >> r.n >> r.m >> r.p >> r.dp_dtheta) out.push_back(r);
   return out;
 }
 

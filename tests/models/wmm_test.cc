@@ -15,6 +15,7 @@
 #include <vector>
 
 #include "models/geodesy.h"
+#include "tests/support/subprocess.h"
 
 namespace fluxtrim::models {
 namespace {
@@ -422,12 +423,10 @@ std::vector<double> PythonDecimalYears(const std::vector<std::string>& dates) {
       "  print(repr(d.year+(d-y0).total_seconds()/(y1-y0).total_seconds()))\n";
   std::string command = std::string(FLUXTRIM_PYTHON) + " -c '" + script + "'";
   for (const std::string& d : dates) command += " '" + d + "'";
-  FILE* pipe = popen(command.c_str(), "r");
+  std::istringstream in(test_support::RunCommand(command).output);
   std::vector<double> out;
-  if (pipe == nullptr) return out;
   double value = 0;
-  while (std::fscanf(pipe, "%lf", &value) == 1) out.push_back(value);
-  pclose(pipe);
+  while (in >> value) out.push_back(value);
   return out;
 }
 
