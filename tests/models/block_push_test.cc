@@ -47,7 +47,7 @@ Recording TrickyRecording(std::size_t n, std::size_t aux_count,
       t += 0.5;  // gap
     } else if (p < 0.015) {
       t -= 0.2;  // time goes back
-    } else if (p > 0.005 + 0.99 * 0.995) {
+    } else if (p > 0.99) {
       // repeated time: no step
     } else {
       t += 0.1;
@@ -159,6 +159,13 @@ TEST_P(BlockPush, CompensatorBlocksEqualSinglePushesBitForBit) {
   }
   keep(single.Flush(one.data()));
   ASSERT_EQ(expected.size(), n);
+  // The recording reaches every flag (and so every branch that sets one).
+  std::uint32_t seen_flags = 0;
+  for (const CompensatedSample& s : expected) seen_flags |= s.flags;
+  std::uint32_t wanted = kFlagGapEdge | kFlagDerivativeInvalid |
+                         kFlagAttitudeOutside | kFlagBadSample;
+  if (config.lag_s != 0.0) wanted |= kFlagLagEdge;
+  EXPECT_EQ(seen_flags & wanted, wanted);
 
   // Blocks of random sizes, 1 to kMaxBlock; with rows kept (every term set
   // builds its rows) and without (the default set's written-out sum).
