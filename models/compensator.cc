@@ -246,9 +246,9 @@ double Compensator::LaggedF(std::uint64_t r, bool* clamped) const {
     return CatmullRom(At(q).f, At(q + 1).f, At(q + 2).f, At(q + 3).f,
                       lag_frac_);
   }
-  // Bounds of this sample's segment within reach.
-  const std::int64_t lo_reach = static_cast<std::int64_t>(r) + lag_floor_ - 1;
-  const std::int64_t hi_reach = static_cast<std::int64_t>(r) + lag_floor_ + 2;
+  // Bounds of this sample's segment within reach of the four readings
+  // q0 .. q0 + 3.
+  const std::int64_t lo_reach = q0, hi_reach = q0 + 3;
   std::int64_t lo = static_cast<std::int64_t>(r);
   while (lo > 0 && lo > lo_reach &&
          At(static_cast<std::uint64_t>(lo - 1)).segment == rec.segment) {
@@ -261,7 +261,7 @@ double Compensator::LaggedF(std::uint64_t r, bool* clamped) const {
   }
   double p[4];
   for (int j = 0; j < 4; ++j) {
-    std::int64_t q = static_cast<std::int64_t>(r) + lag_floor_ - 1 + j;
+    std::int64_t q = q0 + j;
     if (q < lo || q > hi) {
       *clamped = true;
       q = std::clamp(q, lo, hi);

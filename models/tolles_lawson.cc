@@ -129,8 +129,9 @@ void FillTermRow(const TermOptions& o, const double c[3], const double dc[3],
 namespace {
 
 // row . coef in four partial sums (one serial chain of additions was latency
-// bound). Every compensation path (apply, stream, runtime) computes it here, so
-// they agree to the bit.
+// bound). Every row the engine builds is summed here, and
+// DefaultInterference keeps the same order for the default set, so apply,
+// stream and the runtime agree to the bit.
 inline double PartialSumDot(const double* row, const double* coef,
                             std::size_t n) {
   double h0 = 0.0, h1 = 0.0, h2 = 0.0, h3 = 0.0;

@@ -35,12 +35,13 @@ std::string Join(const std::vector<std::string>& names) {
 // alike.
 class RowPusher {
  public:
-  // block: samples per PushBlock (1 when an observer may change the
-  // coefficients between samples, as a stream pushing one at a time would).
+  // observed: an observer sees the outputs and may change the coefficients
+  // after any sample, as in a stream; then samples go in one at a time and
+  // the outputs carry their time. Otherwise kMaxBlock samples per block.
   RowPusher(const proto::CompensationModel& model, const io::Table& schema,
-            models::Compensator* compensator, std::size_t block)
+            models::Compensator* compensator, bool observed)
       : compensator_(compensator),
-        block_(std::clamp<std::size_t>(block, 1, models::Compensator::kMaxBlock)) {
+        block_(observed ? 1 : models::Compensator::kMaxBlock) {
     i_time_ = schema.Find("time");
     i_bx_ = schema.Find("bx");
     i_by_ = schema.Find("by");
@@ -56,19 +57,21 @@ class RowPusher {
     }
     aux_.resize(i_aux_.size());
     const std::size_t m = compensator->max_block_outputs();
-    time_.resize(m);
+    if (observed) {
+      time_.resize(m);
+      out_.time = time_.data();
+    }
     f_comp_.resize(m);
     f_int_.resize(m);
     flags_.resize(m);
-    out_.time = time_.data();
     out_.f_comp = f_comp_.data();
     out_.f_interference = f_int_.data();
     out_.flags = flags_.data();
   }
 
   // Pushes rows [begin, end) of `table`; after each block,
-  // `sink(columns, n)` receives the n samples that came out (time, f_comp,
-  // f_interference, flags).
+  // `sink(columns, n)` receives the n samples that came out (f_comp,
+  // f_interference, flags; time when observed).
   template <typename Sink>
   void Push(const io::Table& table, std::size_t begin, std::size_t end,
             Sink&& sink) {
@@ -110,7 +113,6 @@ class RowPusher {
   }
 
  private:
-
   models::Compensator* compensator_;
   std::size_t block_;
   int i_time_ = -1, i_bx_ = -1, i_by_ = -1, i_bz_ = -1, i_f_ = -1,
@@ -347,11 +349,8 @@ ApplyResult ApplyChunked(const proto::CompensationModel& model,
       if (more && pending.rows() < rate_rows) continue;
       if (pending.rows() == 0 || (fault && pending.rows() < 3)) break;
       CheckRecordingFitsModel(model, pending, file);
-      // An observer may change the coefficients after any sample, as it
-      // would in a stream: then samples go in one at a time.
-      pusher = std::make_unique<RowPusher>(
-          model, pending, &compensator,
-          options.observe ? 1 : models::Compensator::kMaxBlock);
+      pusher = std::make_unique<RowPusher>(model, pending, &compensator,
+                                           static_cast<bool>(options.observe));
       checked = true;
     }
     push_pending();
@@ -394,7 +393,7 @@ io::Table ApplyInMemory(const proto::CompensationModel& model,
   for (std::vector<double>* v : {&f_comp, &f_int, &flags}) v->reserve(n);
 
   models::Compensator compensator(ToCompensatorModel(model, file));
-  RowPusher pusher(model, out, &compensator, models::Compensator::kMaxBlock);
+  RowPusher pusher(model, out, &compensator, /*observed=*/false);
   auto store = [&](const models::CompensatedColumns& o, std::size_t count) {
     f_comp.insert(f_comp.end(), o.f_comp, o.f_comp + count);
     f_int.insert(f_int.end(), o.f_interference, o.f_interference + count);
